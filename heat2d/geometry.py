@@ -1,0 +1,265 @@
+"""Stage 2: :class:`~heat2d.model.Model` -> :class:`Geometry`, a planar straight-line graph.
+
+Shapes are painted in file order (a later shape covers earlier ones), every
+shape outline that lies on the body becomes a graph segment, each face of the
+graph gets a seed with the material of the shape on top there, and each
+boundary selector is resolved to the exposed segments it claims.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import shapely
+from shapely.geometry import LineString, Polygon
+
+from .errors import GeometryError
+from .model import Boundary, Model, Shape
+
+DEFAULT_SIZE_FRACTION = 1 / 50
+"""Default target edge length as a fraction of the model's largest extent."""
+MIN_CIRCLE_SEGMENTS = 16
+
+
+@dataclass(frozen=True, repr=False)
+class Geometry:
+    """The planar straight-line graph handed to the mesher, in model length units.
+
+    Attributes
+    ----------
+    vertices, segments
+        Graph vertices (n, 2) and segments (s, 2) as vertex index pairs.
+    segment_exposed
+        True where a segment lies on the outline of the body or of a void.
+    segment_boundary
+        Index of the boundary entry claiming each segment; -1 where none does.
+    seeds
+        One row per face: x, y, shape index, target edge length.
+    holes
+        One point inside each face that is void or outside every shape.
+    visible
+        The visible part of each shape (shapely geometry, possibly empty).
+    """
+
+    model: Model
+    vertices: np.ndarray
+    segments: np.ndarray
+    segment_exposed: np.ndarray
+    segment_boundary: np.ndarray
+    seeds: np.ndarray
+    holes: np.ndarray
+    visible: tuple
+    body: shapely.Geometry
+    size: float
+    tolerance: float
+    warnings: tuple[str, ...]
+
+    @property
+    def visible_area(self) -> np.ndarray:
+        """Visible area of each shape, in length_unit²."""
+        return np.array([0.0 if s.void else g.area
+                         for s, g in zip(self.model.shapes, self.visible, strict=True)])
+
+    def claimed_length(self) -> np.ndarray:
+        """Length of exposed edges claimed by each boundary entry (model units)."""
+        lengths = self.segment_lengths()
+        mask = self.segment_boundary >= 0
+        return np.bincount(self.segment_boundary[mask], lengths[mask],
+                           minlength=len(self.model.boundaries))
+
+    def insulated_length(self) -> float:
+        """Total exposed length that no boundary entry claims (zero flux)."""
+        lengths = self.segment_lengths()
+        return float(lengths[self.segment_exposed & (self.segment_boundary < 0)].sum())
+
+    def segment_lengths(self) -> np.ndarray:
+        d = self.vertices[self.segments[:, 1]] - self.vertices[self.segments[:, 0]]
+        return np.hypot(d[:, 0], d[:, 1])
+
+    def __repr__(self) -> str:
+        return (f"Geometry({len(self.vertices)} vertices, {len(self.segments)} segments, "
+                f"{len(self.seeds)} faces, {len(self.holes)} holes, size={self.size:g})")
+
+
+def build_geometry(model: Model) -> Geometry:
+    """Paint the shapes, build the graph and resolve the boundary selectors.
+
+    Raises
+    ------
+    GeometryError
+        A polygon is not simple, nothing solid is left, or selectors clash.
+    """
+    extent = _extent(model)
+    grid = 10.0 ** (math.floor(math.log10(extent)) - 9)
+    tol = 8 * grid
+    size = model.mesh.size if model.mesh.size is not None else extent * DEFAULT_SIZE_FRACTION
+    polys = [_polygon(model, s, size, grid) for s in model.shapes]
+
+    # Painting: what later shapes leave of each shape.
+    visible = [None] * len(polys)
+    covered = Polygon()
+    for i in range(len(polys) - 1, -1, -1):
+        visible[i] = shapely.difference(polys[i], covered, grid_size=grid)
+        covered = shapely.union(covered, polys[i], grid_size=grid)
+    solid = [v for s, v in zip(model.shapes, visible, strict=True) if not s.void]
+    body = shapely.union_all(solid, grid_size=grid)
+    if body.is_empty or body.area <= 0:
+        raise GeometryError("no solid material is left after voids and covering shapes",
+                            file=model.source, entry="[[shape]]")
+
+    # Graph: every outline piece on the body, noded.
+    outlines = [p.boundary for p in polys] + [body.boundary]
+    lines = shapely.intersection(shapely.union_all(outlines, grid_size=grid), body,
+                                 grid_size=grid)
+    lines = shapely.line_merge(shapely.union_all(
+        [g for g in shapely.get_parts(lines) if g.geom_type in ("LineString", "LinearRing")],
+        grid_size=grid))
+    parts = shapely.get_parts(lines)
+    coords = [shapely.get_coordinates(g) for g in parts]
+    starts = np.concatenate([c[:-1] for c in coords])
+    ends = np.concatenate([c[1:] for c in coords])
+    vertices, inverse = np.unique(np.vstack([starts, ends]), axis=0, return_inverse=True)
+    inverse = inverse.ravel()
+    segments = np.column_stack([inverse[: len(starts)], inverse[len(starts):]])
+    segments = segments[segments[:, 0] != segments[:, 1]]
+    segments = np.unique(np.sort(segments, axis=1), axis=0)
+
+    # Faces: seed each with the shape on top there.
+    faces = shapely.get_parts(shapely.polygonize(parts))
+    points = shapely.point_on_surface(faces)
+    fx, fy = shapely.get_coordinates(points).T
+    top = np.full(len(faces), -1)
+    for i in range(len(polys) - 1, -1, -1):
+        hit = (top < 0) & shapely.contains_xy(polys[i], fx, fy)
+        top[hit] = i
+    void = np.array([s.void for s in model.shapes])
+    is_hole = (top < 0) | void[np.maximum(top, 0)]
+    shape_size = np.array([s.mesh_size or size for s in model.shapes])
+    solid_faces = ~is_hole
+    seeds = np.column_stack([fx[solid_faces], fy[solid_faces], top[solid_faces],
+                             shape_size[top[solid_faces]]])
+    holes = np.column_stack([fx[is_hole], fy[is_hole]])
+
+    # Exposed segments and boundary claims.
+    a, b = vertices[segments[:, 0]], vertices[segments[:, 1]]
+    mid = 0.5 * (a + b)
+    exposed = _on(body.boundary, a, b, mid, tol)
+    claims = _claims(model, polys, exposed, a, b, mid, tol)
+
+    warnings = []
+    for s, v in zip(model.shapes, visible, strict=True):
+        if not s.void and v.area <= 0:
+            powered = " and its power is lost" if (s.power or s.power_density) else ""
+            warnings.append(f"shape {s.name!r} is fully covered by later shapes{powered}")
+    return Geometry(model=model, vertices=vertices, segments=segments,
+                    segment_exposed=exposed, segment_boundary=claims, seeds=seeds,
+                    holes=holes, visible=tuple(visible), body=body, size=size,
+                    tolerance=tol, warnings=tuple(warnings))
+
+
+def shape_outline(shape: Shape, size: float) -> np.ndarray:
+    """Outline vertices of a shape; a circle as a polygon with chords no longer than ``size``."""
+    if shape.circle is None:
+        return np.asarray(shape.points, dtype=float)
+    x, y, r = shape.circle
+    n = max(MIN_CIRCLE_SEGMENTS, math.ceil(2 * math.pi * r / size))
+    t = np.linspace(0.0, 2 * math.pi, n, endpoint=False)
+    return np.column_stack([x + r * np.cos(t), y + r * np.sin(t)])
+
+
+def _extent(model: Model) -> float:
+    pts = np.vstack([_bbox_points(s) for s in model.shapes])
+    span = pts.max(axis=0) - pts.min(axis=0)
+    return float(max(span.max(), np.abs(pts).max() * 1e-6, 1e-300))
+
+
+def _bbox_points(shape: Shape) -> np.ndarray:
+    if shape.circle is not None:
+        x, y, r = shape.circle
+        return np.array([[x - r, y - r], [x + r, y + r]])
+    return np.asarray(shape.points, dtype=float)
+
+
+def _polygon(model: Model, shape: Shape, size: float, grid: float) -> Polygon:
+    local = shape.mesh_size or size
+    outline = shape_outline(shape, local)
+    poly = Polygon(outline)
+    if not poly.is_valid or not poly.exterior.is_simple or poly.area <= 0:
+        reason = shapely.is_valid_reason(poly)
+        raise GeometryError(f"polygon is not simple: {reason}", file=model.source,
+                            entry=f"shape {shape.name!r}", line=shape.line)
+    snapped = shapely.set_precision(poly, grid)
+    if snapped.is_empty or snapped.area <= 0:
+        raise GeometryError("shape is too small for the model's extent", file=model.source,
+                            entry=f"shape {shape.name!r}", line=shape.line)
+    return snapped
+
+
+def _on(geom: shapely.Geometry, a: np.ndarray, b: np.ndarray, mid: np.ndarray,
+        tol: float) -> np.ndarray:
+    """True for segments (a, b) lying on ``geom`` (both ends and the midpoint within tol)."""
+    if geom.is_empty or len(a) == 0:
+        return np.zeros(len(a), dtype=bool)
+    shapely.prepare(geom)
+    return (shapely.dwithin(geom, shapely.points(mid), tol)
+            & shapely.dwithin(geom, shapely.points(a), tol)
+            & shapely.dwithin(geom, shapely.points(b), tol))
+
+
+SIDE_CORNERS = {"bottom": (0, 1), "right": (1, 2), "top": (2, 3), "left": (3, 0)}
+"""Rect side -> indices of its two corners in ``Shape.points``."""
+
+
+def _select(boundary: Boundary, polys: list[Polygon], model: Model, a: np.ndarray,
+            b: np.ndarray, mid: np.ndarray, tol: float) -> np.ndarray:
+    """Segments (exposed or not) that a selector names; ``exterior`` is handled by the caller."""
+    sel = boundary.selector
+    if sel.kind == "box":
+        x0, y0, x1, y1 = sel.box
+        inside = [(p[:, 0] >= x0 - tol) & (p[:, 0] <= x1 + tol) & (p[:, 1] >= y0 - tol)
+                  & (p[:, 1] <= y1 + tol) for p in (a, b)]
+        return inside[0] & inside[1]
+    shape = model.shape(sel.shape)
+    if sel.kind == "shape":
+        return _on(polys[shape.index].boundary, a, b, mid, tol)
+    i, j = SIDE_CORNERS[sel.side]
+    side = LineString([shape.points[i], shape.points[j]])
+    return _on(side, a, b, mid, tol)
+
+
+SELECTORS = ("side", "shape", "box", "exterior")
+"""Selector kinds, in the order claims are resolved (exterior takes what is left)."""
+
+
+def _claims(model: Model, polys: list[Polygon], exposed: np.ndarray, a: np.ndarray,
+            b: np.ndarray, mid: np.ndarray, tol: float) -> np.ndarray:
+    owner = np.full(len(a), -1)
+    exterior = []
+    for bc in model.boundaries:
+        entry = f"boundary {bc.name!r}"
+        if bc.selector.kind == "exterior":
+            exterior.append(bc)
+            continue
+        mask = _select(bc, polys, model, a, b, mid, tol) & exposed
+        if not mask.any():
+            raise GeometryError(f"on = {str(bc.selector)!r} selects no exposed edge "
+                                "(only the outline of the body and of its voids can carry "
+                                "a boundary)", file=model.source, entry=entry, line=bc.line)
+        clash = mask & (owner >= 0)
+        if clash.any():
+            k = int(np.argmax(clash))
+            other = model.boundaries[owner[k]]
+            raise GeometryError(
+                f"claims the same edge as boundary {other.name!r} near "
+                f"({mid[k, 0]:.6g}, {mid[k, 1]:.6g}) ({str(bc.selector)!r} and "
+                f"{str(other.selector)!r}); narrow one selector", file=model.source,
+                entry=entry, line=bc.line)
+        owner[mask] = bc.index
+    if len(exterior) > 1:
+        raise GeometryError("only one boundary may use on = \"exterior\"", file=model.source,
+                            entry=f"boundary {exterior[1].name!r}", line=exterior[1].line)
+    if exterior:
+        owner[exposed & (owner < 0)] = exterior[0].index
+    return owner

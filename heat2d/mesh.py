@@ -1,0 +1,153 @@
+"""Stage 3: :class:`~heat2d.geometry.Geometry` -> :class:`Mesh` of linear triangles.
+
+A constrained Delaunay quality mesh from ``triangle``: every graph segment
+survives as a chain of mesh edges, each face keeps its shape through a
+regional attribute, and each face's target edge length becomes an area bound.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import MeshError
+from .geometry import Geometry
+
+EQUILATERAL_AREA = np.sqrt(3.0) / 4.0
+"""Area of an equilateral triangle of unit side: target size h -> area bound."""
+
+
+@dataclass(frozen=True, repr=False)
+class Mesh:
+    """Linear triangles with their shape and material, and the exposed edges.
+
+    Attributes
+    ----------
+    points : (n, 2) float
+        Node coordinates in the model's length unit.
+    triangles : (m, 3) int
+        Node indices, counter-clockwise.
+    triangle_shape, triangle_material : (m,) int
+        Index into ``model.shapes`` and ``model.materials``.
+    edges : (e, 2) int
+        Exposed edges (outline of the body and of its voids).
+    edge_boundary : (e,) int
+        Boundary entry claiming each exposed edge; -1 = insulated.
+    """
+
+    geometry: Geometry
+    points: np.ndarray
+    triangles: np.ndarray
+    triangle_shape: np.ndarray
+    triangle_material: np.ndarray
+    edges: np.ndarray
+    edge_boundary: np.ndarray
+
+    @property
+    def model(self):
+        return self.geometry.model
+
+    @property
+    def areas(self) -> np.ndarray:
+        """Triangle areas in length_unit²."""
+        p = self.points[self.triangles]
+        d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
+        return 0.5 * (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0])
+
+    @property
+    def edge_lengths(self) -> np.ndarray:
+        d = self.points[self.edges[:, 1]] - self.points[self.edges[:, 0]]
+        return np.hypot(d[:, 0], d[:, 1])
+
+    def min_angle(self) -> float:
+        """Smallest interior angle of any triangle, degrees."""
+        p = self.points[self.triangles]
+        e = [p[:, (i + 1) % 3] - p[:, i] for i in range(3)]
+        lengths = [np.hypot(v[:, 0], v[:, 1]) for v in e]
+        angles = []
+        for i in range(3):
+            u, v = -e[(i - 1) % 3], e[i]
+            cos = (u * v).sum(axis=1) / (lengths[(i - 1) % 3] * lengths[i])
+            angles.append(np.degrees(np.arccos(np.clip(cos, -1.0, 1.0))))
+        return float(np.min(angles)) if len(p) else 0.0
+
+    def __repr__(self) -> str:
+        shapes = sorted({self.model.shapes[i].name for i in np.unique(self.triangle_shape)})
+        return (f"Mesh({len(self.points)} nodes, {len(self.triangles)} triangles, "
+                f"{len(self.edges)} exposed edges, shapes: {', '.join(shapes)})")
+
+
+def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
+    """Mesh the graph with minimum angle and per-face size bounds.
+
+    Parameters
+    ----------
+    geometry
+        The graph from :func:`~heat2d.geometry.build_geometry`.
+    refine
+        Divide every target edge length by this factor (for convergence studies).
+
+    Raises
+    ------
+    MeshError
+        The mesher failed or returned a mesh inconsistent with the graph.
+    """
+    import triangle
+
+    model = geometry.model
+    regions = geometry.seeds.copy()
+    face_shape = regions[:, 2].astype(int)
+    regions[:, 2] = np.arange(len(regions))
+    regions[:, 3] = EQUILATERAL_AREA * (regions[:, 3] / refine) ** 2
+    data = {
+        "vertices": geometry.vertices,
+        "segments": geometry.segments,
+        "segment_markers": (np.arange(len(geometry.segments)) + 2)[:, None],
+        "regions": regions,
+    }
+    if len(geometry.holes):
+        data["holes"] = geometry.holes
+    try:
+        out = triangle.triangulate(data, f"pq{model.mesh.min_angle:g}aAQ")
+    except Exception as exc:  # the C mesher reports failures as plain exceptions
+        raise MeshError(f"mesher failed: {exc}", file=model.source) from exc
+    if "triangles" not in out or len(out["triangles"]) == 0:
+        raise MeshError("mesher returned no triangles", file=model.source)
+    points = out["vertices"]
+    tris = out["triangles"].astype(np.int64)
+    face = out["triangle_attributes"][:, 0].round().astype(int)
+    shape = face_shape[face]
+    material_index = {m.name: i for i, m in enumerate(model.materials)}
+    shape_material = np.array([material_index.get(s.material, -1) for s in model.shapes])
+    material = shape_material[shape]
+
+    # Counter-clockwise orientation, whatever the mesher returned.
+    p = points[tris]
+    d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
+    cw = (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]) < 0
+    tris[cw] = tris[cw][:, [0, 2, 1]]
+
+    # Exposed edges: output segments whose graph segment is exposed.
+    seg = out["segments"].astype(np.int64)
+    marker = out["segment_markers"].ravel().astype(int) - 2
+    if (marker < 0).any():
+        raise MeshError("mesher created segments that are not in the graph",
+                        file=model.source)
+    exposed = geometry.segment_exposed[marker]
+    edges, edge_segment = seg[exposed], marker[exposed]
+    _check_outline(tris, edges, len(points), model.source)
+    return Mesh(geometry=geometry, points=points, triangles=tris, triangle_shape=shape,
+                triangle_material=material, edges=edges,
+                edge_boundary=geometry.segment_boundary[edge_segment])
+
+
+def _check_outline(tris: np.ndarray, edges: np.ndarray, n: int, source: str) -> None:
+    """Every edge with one triangle must be an exposed edge, and the reverse."""
+    all_edges = np.sort(tris[:, [0, 1, 1, 2, 2, 0]].reshape(-1, 2), axis=1)
+    keys, counts = np.unique(all_edges[:, 0] * n + all_edges[:, 1], return_counts=True)
+    outline = np.sort(keys[counts == 1])
+    given = np.sort(np.sort(edges, axis=1) @ np.array([n, 1]))
+    if len(outline) != len(given) or not np.array_equal(outline, given):
+        raise MeshError(f"mesh outline ({len(outline)} edges) does not match the exposed "
+                        f"segments ({len(given)} edges)", file=source)
