@@ -120,6 +120,7 @@ def build_geometry(model: Model) -> Geometry:
     coords = [shapely.get_coordinates(g) for g in parts]
     starts = np.concatenate([c[:-1] for c in coords])
     ends = np.concatenate([c[1:] for c in coords])
+    starts, ends = _split_at(starts, ends, _box_cuts(model, body, grid), tol)
     vertices, inverse = np.unique(np.vstack([starts, ends]), axis=0, return_inverse=True)
     inverse = inverse.ravel()
     segments = np.column_stack([inverse[: len(starts)], inverse[len(starts):]])
@@ -148,15 +149,63 @@ def build_geometry(model: Model) -> Geometry:
     exposed = _on(body.boundary, a, b, mid, tol)
     claims = _claims(model, polys, exposed, a, b, mid, tol)
 
+    _check_probes(model, body, tol)
     warnings = []
     for s, v in zip(model.shapes, visible, strict=True):
         if not s.void and v.area <= 0:
             powered = " and its power is lost" if (s.power or s.power_density) else ""
-            warnings.append(f"shape {s.name!r} is fully covered by later shapes{powered}")
+            warnings.append(f"shape \"{s.name}\" is fully covered by later shapes{powered}")
     return Geometry(model=model, vertices=vertices, segments=segments,
                     segment_exposed=exposed, segment_boundary=claims, seeds=seeds,
                     holes=holes, visible=tuple(visible), body=body, size=size,
                     tolerance=tol, warnings=tuple(warnings))
+
+
+def _box_cuts(model: Model, body: shapely.Geometry, grid: float) -> np.ndarray:
+    """Points where a box selector's outline crosses the body outline: the graph is cut there
+    so that a box claims exactly the part of an edge inside it."""
+    cuts = []
+    for bc in model.boundaries:
+        if bc.selector.kind == "box":
+            x0, y0, x1, y1 = bc.selector.box
+            box = shapely.box(x0, y0, x1, y1).boundary
+            cuts.append(shapely.get_coordinates(
+                shapely.intersection(box, body.boundary, grid_size=grid)))
+    return np.vstack(cuts) if cuts else np.empty((0, 2))
+
+
+def _split_at(starts: np.ndarray, ends: np.ndarray, cuts: np.ndarray, tol: float
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """Split segments (starts[i], ends[i]) at the cut points lying on them."""
+    if len(cuts) == 0:
+        return starts, ends
+    d = ends - starts                                            # (s, 2)
+    length2 = (d * d).sum(axis=1)
+    rel = cuts[None, :, :] - starts[:, None, :]                  # (s, c, 2)
+    t = (rel * d[:, None, :]).sum(axis=2) / length2[:, None]
+    off = rel - t[..., None] * d[:, None, :]
+    dist = np.hypot(off[..., 0], off[..., 1])
+    margin = tol / np.sqrt(length2)[:, None]
+    on = (dist <= tol) & (t > margin) & (t < 1 - margin)
+    if not on.any():
+        return starts, ends
+    new_starts, new_ends = [starts[~on.any(axis=1)]], [ends[~on.any(axis=1)]]
+    for i in np.flatnonzero(on.any(axis=1)):                     # only the few cut segments
+        ts = np.unique(np.concatenate([[0.0], t[i, on[i]], [1.0]]))
+        pts = starts[i] + ts[:, None] * d[i]
+        pts[0], pts[-1] = starts[i], ends[i]
+        pts[1:-1] = cuts[on[i]][np.argsort(t[i, on[i]])][: len(pts) - 2]
+        new_starts.append(pts[:-1])
+        new_ends.append(pts[1:])
+    return np.vstack(new_starts), np.vstack(new_ends)
+
+
+def _check_probes(model: Model, body: shapely.Geometry, tol: float) -> None:
+    for probe in model.probes:
+        if not shapely.dwithin(body, shapely.Point(probe.x, probe.y), tol):
+            raise GeometryError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body "
+                                "(outside every shape, or in a void)", file=model.source,
+                                entry=f"probe \"{probe.name}\"", line=probe.line)
 
 
 def shape_outline(shape: Shape, size: float) -> np.ndarray:
@@ -189,11 +238,11 @@ def _polygon(model: Model, shape: Shape, size: float, grid: float) -> Polygon:
     if not poly.is_valid or not poly.exterior.is_simple or poly.area <= 0:
         reason = shapely.is_valid_reason(poly)
         raise GeometryError(f"polygon is not simple: {reason}", file=model.source,
-                            entry=f"shape {shape.name!r}", line=shape.line)
+                            entry=f"shape \"{shape.name}\"", line=shape.line)
     snapped = shapely.set_precision(poly, grid)
     if snapped.is_empty or snapped.area <= 0:
         raise GeometryError("shape is too small for the model's extent", file=model.source,
-                            entry=f"shape {shape.name!r}", line=shape.line)
+                            entry=f"shape \"{shape.name}\"", line=shape.line)
     return snapped
 
 
@@ -238,7 +287,7 @@ def _claims(model: Model, polys: list[Polygon], exposed: np.ndarray, a: np.ndarr
     owner = np.full(len(a), -1)
     exterior = []
     for bc in model.boundaries:
-        entry = f"boundary {bc.name!r}"
+        entry = f"boundary \"{bc.name}\""
         if bc.selector.kind == "exterior":
             exterior.append(bc)
             continue
@@ -252,14 +301,14 @@ def _claims(model: Model, polys: list[Polygon], exposed: np.ndarray, a: np.ndarr
             k = int(np.argmax(clash))
             other = model.boundaries[owner[k]]
             raise GeometryError(
-                f"claims the same edge as boundary {other.name!r} near "
+                f"claims the same edge as boundary \"{other.name}\" near "
                 f"({mid[k, 0]:.6g}, {mid[k, 1]:.6g}) ({str(bc.selector)!r} and "
                 f"{str(other.selector)!r}); narrow one selector", file=model.source,
                 entry=entry, line=bc.line)
         owner[mask] = bc.index
     if len(exterior) > 1:
         raise GeometryError("only one boundary may use on = \"exterior\"", file=model.source,
-                            entry=f"boundary {exterior[1].name!r}", line=exterior[1].line)
+                            entry=f"boundary \"{exterior[1].name}\"", line=exterior[1].line)
     if exterior:
         owner[exposed & (owner < 0)] = exterior[0].index
     return owner

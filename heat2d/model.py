@@ -363,18 +363,18 @@ class _Reader:
         unknown = sorted(set(overrides) - set(raw))
         if unknown:
             known = ", ".join(raw) or "none"
-            raise self.fail(f"param {unknown[0]!r}",
+            raise self.fail(f"param \"{unknown[0]}\"",
                             f"no such parameter in [params] to set (known: {known})", None)
         out = []
         for name, value in raw.items():
             if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", name):
-                raise self.fail(f"param {name!r}", "parameter names are letters, digits and _",
+                raise self.fail(f"param \"{name}\"", "parameter names are letters, digits and _",
                                 self.index.find("params", 0, name))
             if name in CONSTANTS or name in FUNCTIONS:
-                raise self.fail(f"param {name!r}", "this name is reserved for expressions",
+                raise self.fail(f"param \"{name}\"", "this name is reserved for expressions",
                                 self.index.find("params", 0, name))
             given = overrides.get(name, value)
-            entry = f"param {name!r}" + (" (--set)" if name in overrides else "")
+            entry = f"param \"{name}\"" + (" (--set)" if name in overrides else "")
             self.names[name] = self.number(given, entry, name, ("params", 0))
             out.append((name, self.names[name]))
         return tuple(out)
@@ -384,7 +384,7 @@ class _Reader:
         out: dict[str, Material] = {}
         for name, spec in raw.items():
             where = (f"materials.{name}", 0)
-            entry = f"material {name!r}"
+            entry = f"material \"{name}\""
             spec = self.table(spec, entry, name, ("materials", 0))
             self.check_keys(spec, "material", entry, where)
             if "k" in spec and ("kx" in spec or "ky" in spec):
@@ -414,7 +414,7 @@ class _Reader:
         for i, spec in enumerate(raw):
             where = ("shape", i)
             name = spec.get("name")
-            entry = f"shape {name!r}" if isinstance(name, str) else f"shape #{i + 1}"
+            entry = f"shape \"{name}\"" if isinstance(name, str) else f"shape #{i + 1}"
             self.check_keys(spec, "shape", entry, where)
             name = self.string(name, entry, "name", where)
             if name in seen:
@@ -521,7 +521,7 @@ class _Reader:
         for i, spec in enumerate(raw):
             where = ("boundary", i)
             name = spec.get("name")
-            entry = f"boundary {name!r}" if isinstance(name, str) else f"boundary #{i + 1}"
+            entry = f"boundary \"{name}\"" if isinstance(name, str) else f"boundary #{i + 1}"
             self.check_keys(spec, "boundary", entry, where)
             name = self.string(name, entry, "name", where)
             if name in seen:
@@ -596,7 +596,7 @@ class _Reader:
         for i, spec in enumerate(raw):
             where = ("probe", i)
             name = spec.get("name")
-            entry = f"probe {name!r}" if isinstance(name, str) else f"probe #{i + 1}"
+            entry = f"probe \"{name}\"" if isinstance(name, str) else f"probe #{i + 1}"
             self.check_keys(spec, "probe", entry, where)
             name = self.string(name, entry, "name", where)
             if name in seen:

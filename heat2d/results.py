@@ -139,7 +139,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
         k, bary = locate(mesh.points, tri, probe.x, probe.y, mesh.geometry.tolerance)
         if k < 0:
             raise ModelError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body",
-                             file=model.source, entry=f"probe {probe.name!r}", line=probe.line)
+                             file=model.source, entry=f"probe \"{probe.name}\"", line=probe.line)
         probes[probe.name] = float(bary @ T[tri[k]])
 
     warnings = [*mesh.geometry.warnings, *system.warnings, *solution.notes]

@@ -1,0 +1,100 @@
+"""The temperature map written as ``<stem>.png``."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .results import Result
+
+LEVELS = 24
+ZOOM_BELOW_ASPECT = 0.3
+"""Add a zoomed panel around the hot spot when the model is flatter than this."""
+ZOOM_WINDOW = 3.5
+"""Width of the zoomed panel, in model heights."""
+
+
+def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None):
+    """Draw the temperature map; save it to ``path`` if given and return the figure.
+
+    Filled contours with isotherm lines, shape outlines, the hot spot marked and
+    labelled, colour bar in °C, axes in the model's length unit, equal aspect.
+    A flat model (a board slice) gets a second panel zoomed on the hot spot.
+    """
+    import matplotlib.tri as mtri
+    from matplotlib.figure import Figure
+
+    mesh, model, summary = result.mesh, result.model, result.summary
+    T = result.temperature
+    x0, y0 = mesh.points.min(axis=0)
+    x1, y1 = mesh.points.max(axis=0)
+    aspect = (y1 - y0) / max(x1 - x0, 1e-300)
+    zoom = aspect < ZOOM_BELOW_ASPECT
+    width = 11.0
+    full_h = float(np.clip(width * 0.8 * aspect, 0.6, 7.5))
+    zoom_h = width * 0.8 / ZOOM_WINDOW if zoom else 0.0
+    if fig is None:
+        fig = Figure(figsize=(width, full_h + zoom_h + 1.4 + (0.8 if zoom else 0.0)),
+                     layout="constrained")
+    axes = fig.subplots(2 if zoom else 1, 1, squeeze=False,
+                        height_ratios=[full_h, zoom_h] if zoom else None)[:, 0]
+    tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)
+    lo, hi = float(T.min()), float(T.max())
+    levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
+    hs = summary["hot_spot"]
+    unit = model.length_unit
+    for k, ax in enumerate(axes):
+        filled = ax.tricontourf(tri, T, levels=levels, cmap="inferno")
+        lines = ax.tricontour(tri, T, levels=levels[::4], colors="k", linewidths=0.4,
+                              alpha=0.6)
+        if k == len(axes) - 1:
+            ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
+        _outlines(ax, result)
+        ax.plot(hs["x"], hs["y"], marker="x", color="cyan", markersize=9, mew=2)
+        if k == len(axes) - 1:
+            upper = hs["y"] > 0.5 * (y0 + y1)
+            right = hs["x"] > 0.5 * (x0 + x1) if not zoom else False
+            ax.annotate(f"hot spot {hs['temperature']:.1f} °C ({hs['shape']})",
+                        (hs["x"], hs["y"]), xytext=(-10 if right else 10, -12 if upper else 12),
+                        textcoords="offset points", color="white", fontsize=9,
+                        ha="right" if right else "left", va="top" if upper else "bottom",
+                        bbox={"boxstyle": "round", "fc": "black", "alpha": 0.6, "lw": 0})
+        ax.set_aspect("equal")
+        ax.set_xlabel(f"x ({unit})")
+        ax.set_ylabel(f"y ({unit})")
+    if zoom:
+        half = 0.5 * ZOOM_WINDOW * (y1 - y0)
+        cx = float(np.clip(hs["x"], x0 + half, x1 - half)) if x1 - x0 > 2 * half else hs["x"]
+        axes[1].set_xlim(cx - half, cx + half)
+        axes[1].set_ylim(y0 - 0.02 * (y1 - y0), y1 + 0.02 * (y1 - y0))
+        axes[1].set_title("around the hot spot", fontsize=9)
+        from matplotlib.patches import Rectangle
+
+        axes[0].add_patch(Rectangle((cx - half, y0), 2 * half, y1 - y0, fill=False,
+                                    ec="cyan", lw=1.0, ls="--"))
+    bar = fig.colorbar(filled, ax=list(axes), shrink=0.9)
+    bar.set_label("temperature (°C)")
+    title = model.title or model.stem
+    axes[0].set_title(f"{title}: max {hs['temperature']:.1f} °C, "
+                      f"{summary['energy_balance']['power_in_w']:.3g} W over "
+                      f"{model.depth:g} {unit} depth", fontsize=10)
+    fig.text(0.01, 0.002, "Estimate only: confirm against measurements and component ratings.",
+             fontsize=7, color="0.35", va="bottom")
+    if path is not None:
+        fig.savefig(path, dpi=110)
+    return fig
+
+
+def _outlines(ax, result: Result) -> None:
+    """Draw the visible outline of every shape as thin white lines."""
+    import shapely
+
+    segments = []
+    for geom in result.mesh.geometry.visible:
+        for part in shapely.get_parts(shapely.boundary(geom)):
+            for ring in shapely.get_parts(part):
+                segments.append(shapely.get_coordinates(ring))
+    from matplotlib.collections import LineCollection
+
+    ax.add_collection(LineCollection(segments, colors="0.55", linewidths=0.8))

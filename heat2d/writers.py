@@ -1,0 +1,165 @@
+"""Stage 7: :class:`~heat2d.results.Result` -> files.
+
+Every writer puts one file into a scratch folder; :func:`write` moves them
+into place only when all have succeeded, so a failed run leaves nothing
+half-written.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from collections.abc import Callable, Iterable
+from pathlib import Path
+
+import numpy as np
+
+from .errors import Heat2dError
+from .results import Result
+
+
+def write_vtu(result: Result, path: Path) -> None:
+    """The mesh with point data ``temperature`` and cell data ``heat_flux``, ``shape_id``,
+    ``material_id`` (ids index ``summary["ids"]``)."""
+    import meshio
+
+    mesh = result.mesh
+    points = np.column_stack([mesh.points, np.zeros(len(mesh.points))])
+    flux = np.column_stack([result.heat_flux, np.zeros(len(result.heat_flux))])
+    meshio.Mesh(
+        points, [("triangle", mesh.triangles)],
+        point_data={"temperature": result.temperature},
+        cell_data={"heat_flux": [flux], "shape_id": [mesh.triangle_shape.astype(np.int32)],
+                   "material_id": [mesh.triangle_material.astype(np.int32)]},
+    ).write(path, file_format="vtu")
+
+
+def write_json(result: Result, path: Path) -> None:
+    """The summary as JSON (see docs/model-format.md for the keys)."""
+    path.write_text(json.dumps(result.summary, indent=2, allow_nan=False) + "\n",
+                    encoding="utf-8")
+
+
+def write_text(result: Result, path: Path) -> None:
+    """The summary as a readable table, with the caution."""
+    path.write_text(format_summary(result.summary) + "\n", encoding="utf-8")
+
+
+def write_png(result: Result, path: Path) -> None:
+    """A temperature map: filled contours, isotherms, shape outlines, hot spot, colour bar."""
+    from .plot import plot_temperature
+
+    plot_temperature(result, path)
+
+
+WRITERS: dict[str, tuple[str, Callable[[Result, Path], None]]] = {
+    "vtu": ("{stem}.vtu", write_vtu),
+    "json": ("summary.json", write_json),
+    "txt": ("summary.txt", write_text),
+    "png": ("{stem}.png", write_png),
+}
+"""Output writers by name: file name pattern and function."""
+
+
+def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None = None,
+          stem: str | None = None) -> list[Path]:
+    """Write the outputs of a run into ``out_dir`` (created if needed), all or nothing.
+
+    Parameters
+    ----------
+    result
+        From :func:`heat2d.run`.
+    out_dir
+        Destination folder.
+    formats
+        Names from :data:`WRITERS`; all by default.
+    stem
+        File stem for the VTU and PNG; the model file's stem by default.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    names = list(WRITERS) if formats is None else list(formats)
+    unknown = sorted(set(names) - set(WRITERS))
+    if unknown:
+        raise Heat2dError(f"unknown output format {unknown[0]!r} (choose from: "
+                          f"{', '.join(sorted(WRITERS))})")
+    stem = stem or result.model.stem
+    out = Path(out_dir)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise Heat2dError(f"cannot create output folder: {exc}", file=str(out)) from None
+    scratch = Path(tempfile.mkdtemp(prefix=".heat2d-partial-", dir=out))
+    try:
+        written = []
+        for name in names:
+            pattern, func = WRITERS[name]
+            target = scratch / pattern.format(stem=stem)
+            func(result, target)
+            written.append(target)
+        final = []
+        for f in written:
+            os.replace(f, out / f.name)
+            final.append(out / f.name)
+        return final
+    except OSError as exc:
+        raise Heat2dError(f"cannot write outputs: {exc}", file=str(out)) from None
+    finally:
+        shutil.rmtree(scratch, ignore_errors=True)
+
+
+def _fmt(value: float | None, spec: str = ".2f") -> str:
+    return "-" if value is None else format(value, spec)
+
+
+def format_summary(summary: dict) -> str:
+    """The run summary as a plain-text table."""
+    unit = summary["units"]["length"]
+    hs = summary["hot_spot"]
+    eb = summary["energy_balance"]
+    lines = [
+        f"heat2d {summary['heat2d_version']}: {summary['model']['file']}"
+        + (f"  ({summary['model']['title']})" if summary["model"]["title"] else ""),
+        f"depth {summary['model']['depth']:g} {unit}; powers and heat flows are for this depth",
+        "",
+        f"Hot spot      {hs['temperature']:.2f} °C in {hs['shape']!r} at "
+        f"({hs['x']:.4g}, {hs['y']:.4g}) {unit}",
+        f"Temperature   min {summary['temperature']['min']:.2f} °C, "
+        f"max {summary['temperature']['max']:.2f} °C",
+        "",
+        f"{'shape':<20} {'material':<14} {'min °C':>9} {'mean °C':>9} {'max °C':>9} "
+        f"{'power W':>10}",
+    ]
+    for name, s in summary["shapes"].items():
+        lines.append(f"{name:<20} {s['material'] or '':<14} {_fmt(s['min']):>9} "
+                     f"{_fmt(s['mean']):>9} {_fmt(s['max']):>9} {s['power_w']:>10.4g}")
+    lines += ["", f"{'boundary':<20} {'kind':<12} {'heat out W':>11} {'share':>7} "
+              f"{'mean °C':>9} {'length ' + unit:>11}"]
+    total_out = sum(max(b["heat_out_w"], 0.0) for b in summary["boundaries"].values())
+    for name, b in summary["boundaries"].items():
+        share = f"{100 * b['heat_out_w'] / total_out:.1f}%" if total_out > 0 else "-"
+        lines.append(f"{name:<20} {b['kind']:<12} {b['heat_out_w']:>11.4g} {share:>7} "
+                     f"{b['mean_temperature']:>9.2f} {b['length']:>11.4g}")
+    lines.append(f"{'(insulated)':<20} {'':<12} {0:>11} {'':>7} {'':>9} "
+                 f"{summary['insulated_length']:>11.4g}")
+    if summary["probes"]:
+        lines += ["", f"{'probe':<20} {'°C':>9}"]
+        lines += [f"{name:<20} {t:>9.2f}" for name, t in summary["probes"].items()]
+    m, sv = summary["mesh"], summary["solver"]
+    lines += [
+        "",
+        f"Energy balance  power in {eb['power_in_w']:.6g} W, heat out {eb['heat_out_w']:.6g} W, "
+        f"relative error {eb['relative_error']:.1e}",
+        f"Mesh            {m['nodes']} nodes, {m['triangles']} triangles, smallest angle "
+        f"{m['min_angle_deg']:.1f}°",
+        f"Solver          {sv['method']}, {sv['iterations']} iteration(s), relative residual "
+        f"{sv['relative_residual']:.1e}",
+    ]
+    lines += [f"warning: {w}" for w in summary["warnings"]]
+    lines += ["", "CAUTION: " + summary["caution"]]
+    return "\n".join(lines)
