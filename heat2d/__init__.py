@@ -21,7 +21,16 @@ from .errors import (  # noqa: E402
     SolveError,
 )
 from .model import Model, load, parse  # noqa: E402
-from .pipeline import run  # noqa: E402
+
+
+def __getattr__(name: str):
+    # The solver stack (scipy, shapely, triangle) loads on first use, so `import heat2d`
+    # and the command line's --help stay fast.
+    if name == "run":
+        from .pipeline import run
+
+        return run
+    raise AttributeError(f"module 'heat2d' has no attribute {name!r}")
 
 __all__ = [
     "GeometryError", "Heat2dError", "MeshError", "Model", "ModelError", "NoHeatPathError",

@@ -53,7 +53,7 @@ class _Announcer:
         else:
             if self.timer:
                 self.timer.cancel()
-            if self.shown:
+            if self.shown and event == "end":
                 print(f"  {stage} done in {time.perf_counter() - self.started:.1f} s",
                       file=self.stream, flush=True)
 
@@ -73,9 +73,11 @@ def cmd_run(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else Path(f"{model.stem}-results")
     if progress:
         progress("writing", "start")
-    files = write(result, out)
-    if progress:
-        progress("writing", "end")
+    try:
+        files = write(result, out)
+    finally:
+        if progress:
+            progress("writing", "end")
     if not args.quiet:
         print(format_summary(result.summary))
         print("\nwrote " + ", ".join(str(f) for f in files))

@@ -13,7 +13,7 @@ from .results import Result, compute_results
 from .solve import solve
 
 Progress = Callable[[str, str], None]
-"""Called as progress(stage, "start" | "end") around each stage."""
+"""Called as progress(stage, event) with event "start", then "end" or "failed"."""
 
 STAGES = ("geometry", "mesh", "assembly", "solve", "results")
 
@@ -44,7 +44,12 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         if progress:
             progress(name, "start")
         start = time.perf_counter()
-        value = func(*args, **kwargs)
+        try:
+            value = func(*args, **kwargs)
+        except BaseException:
+            if progress:
+                progress(name, "failed")
+            raise
         timings[name] = time.perf_counter() - start
         if progress:
             progress(name, "end")

@@ -10,13 +10,16 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 
-from .assembly import System
 from .errors import SolveError
+
+if TYPE_CHECKING:
+    import scipy.sparse as sp
+
+    from .assembly import System
 
 AUTO_DIRECT_LIMIT = 60_000
 """``auto`` factorizes below this many unknowns and uses multigrid CG above
@@ -54,6 +57,8 @@ class Solution:
 
 
 def _direct(A: sp.csr_matrix, b: np.ndarray) -> tuple[np.ndarray, int]:
+    import scipy.sparse.linalg as spla
+
     lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A")
     return lu.solve(b), 1
 
@@ -67,7 +72,7 @@ def _multigrid(A: sp.csr_matrix, b: np.ndarray) -> tuple[np.ndarray, int]:
     return x, max(len(residuals) - 1, 0)
 
 
-SOLVERS: dict[str, Callable[[sp.csr_matrix, np.ndarray], tuple[np.ndarray, int]]] = {
+SOLVERS: dict[str, Callable[[sp.csr_matrix, np.ndarray], tuple[np.ndarray, int]]] = {  # noqa: F821
     "direct": _direct,
     "multigrid": _multigrid,
 }
