@@ -1,7 +1,9 @@
 """Stage 4: :class:`~heat2d.mesh.Mesh` -> :class:`System`, the discrete heat balance K T = F.
 
-Linear triangles, assembled for the model's depth so that K is in W/K and F
-in W. Everything is vectorized over triangles and edges.
+Linear triangles, assembled for the model's depth (or the full revolution of an
+axisymmetric model) so that K is in W/K and F in W. Everything is vectorized over
+triangles and edges; the sparsity pattern is built once and every later matrix
+(a nonlinear iteration, a variant with other values) only refills its values.
 """
 
 from __future__ import annotations
@@ -15,6 +17,122 @@ from scipy.sparse.csgraph import connected_components
 from .errors import NoHeatPathError
 from .mesh import Mesh
 
+SIGMA = 5.670374419e-8
+"""Stefan–Boltzmann constant, W/(m²·K⁴) (CODATA 2018, exact in SI since 2019)."""
+KELVIN = 273.15
+
+
+class Pattern:
+    """A CSR sparsity pattern and, for each COO entry given, its slot in the data array."""
+
+    def __init__(self, n: int, rows: np.ndarray, cols: np.ndarray) -> None:
+        self.n = n
+        keys = rows.astype(np.int64) * n + cols
+        unique, self.slot = np.unique(keys, return_inverse=True)
+        self.slot = self.slot.ravel()
+        self.indices = (unique % n).astype(np.int32)
+        self.indptr = np.searchsorted(unique // n, np.arange(n + 1)).astype(np.int32)
+        self.keys = unique
+
+    def slots(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """Slots of entries that are already in the pattern."""
+        return np.searchsorted(self.keys, rows.astype(np.int64) * self.n + cols)
+
+    def matrix(self, slots: np.ndarray, values: np.ndarray) -> sp.csr_matrix:
+        data = np.bincount(slots, values, minlength=len(self.indices))
+        return sp.csr_matrix((data, self.indices, self.indptr), shape=(self.n, self.n))
+
+
+@dataclass(frozen=True, repr=False)
+class Layout:
+    """What depends on the mesh alone: element geometry, integration weights, pattern.
+
+    Weights already include the depth (planar) or 2πr (axisymmetric), in SI units.
+    """
+
+    kx_unit: np.ndarray        # (m, 3, 3): ∫ ∂φi/∂x ∂φj/∂x dV per unit k
+    ky_unit: np.ndarray        # (m, 3, 3)
+    source: np.ndarray         # (m, 3): ∫ φi dV, m³
+    volume: np.ndarray         # (m,): ∫ dV, m³
+    edge_load: np.ndarray      # (e, 2): ∫ φi dS over each exposed edge, m²
+    edge_mass: np.ndarray      # (e, 2, 2): ∫ φi φj dS, m²
+    iface_mass: np.ndarray     # (k, 2, 2): the same over interface edges
+    pattern: Pattern
+    tri_slots: np.ndarray
+    edge_slots: np.ndarray
+    iface_slots: np.ndarray
+
+
+def build_layout(mesh: Mesh) -> Layout:
+    """Element matrices per unit conductivity, weights and the sparsity pattern."""
+    model = mesh.model
+    s = model.unit_m
+    tri = mesh.triangles
+    x, y = mesh.points[tri, 0] * s, mesh.points[tri, 1] * s               # (m, 3), metres
+    b = np.column_stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]])
+    c = np.column_stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]])
+    area = 0.5 * (b[:, 0] * c[:, 1] - b[:, 1] * c[:, 0])
+    if model.axisymmetric:
+        # ∫ f 2πr dA: exact for the constant gradient product with r̄ at the centroid;
+        # ∫ φi 2πr dA = 2π A (3 r̄ + r_i)/12.
+        rbar = x.mean(axis=1)
+        weight = 2 * np.pi * rbar
+        source = 2 * np.pi * area[:, None] * (3 * rbar[:, None] + x) / 12
+    else:
+        weight = np.full(len(tri), model.depth_m)
+        source = (area * model.depth_m / 3)[:, None].repeat(3, axis=1)
+    scale = (weight / (4 * area))[:, None, None]
+    kx_unit = b[:, :, None] * b[:, None, :] * scale
+    ky_unit = c[:, :, None] * c[:, None, :] * scale
+
+    edge_load, edge_mass = _edge_terms(mesh, mesh.edges)
+    _, iface_mass = _edge_terms(mesh, mesh.interface_a)
+
+    n = len(mesh.points)
+    ia, ib = mesh.interface_a, mesh.interface_b
+    coupling_rows = np.concatenate([_block_rows(ia, ib), _block_rows(ib, ia)])
+    coupling_cols = np.concatenate([_block_cols(ia, ib), _block_cols(ib, ia)])
+    rows = np.concatenate([np.repeat(tri, 3, axis=1).ravel(), coupling_rows])
+    cols = np.concatenate([np.tile(tri, (1, 3)).ravel(), coupling_cols])
+    pattern = Pattern(n, rows, cols)
+    m9 = 9 * len(tri)
+    edges = mesh.edges
+    blocks = [(ia, ia), (ia, ib), (ib, ia), (ib, ib)]
+    return Layout(kx_unit=kx_unit, ky_unit=ky_unit, source=source, volume=source.sum(axis=1),
+                  edge_load=edge_load, edge_mass=edge_mass, iface_mass=iface_mass,
+                  pattern=pattern, tri_slots=pattern.slot[:m9],
+                  edge_slots=pattern.slots(_block_rows(edges, edges), _block_cols(edges, edges)),
+                  iface_slots=pattern.slots(
+                      np.concatenate([_block_rows(p, q) for p, q in blocks]),
+                      np.concatenate([_block_cols(p, q) for p, q in blocks])))
+
+
+def _block_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Row indices of the 2×2 blocks (a_i, b_j), flattened i-major."""
+    return np.repeat(a, 2, axis=1).ravel()
+
+
+def _block_cols(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    return np.tile(b, (1, 2)).ravel()
+
+
+def _edge_terms(mesh: Mesh, edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """∫ φi dS and ∫ φi φj dS over straight edges, with the depth or 2πr weight."""
+    model = mesh.model
+    p = mesh.points[edges] * model.unit_m                                # (e, 2, 2)
+    length = np.hypot(*(p[:, 1] - p[:, 0]).T)
+    if model.axisymmetric:
+        r = p[:, :, 0]
+        r1, r2 = r[:, 0], r[:, 1]
+        load = 2 * np.pi * length[:, None] * np.column_stack([2 * r1 + r2, r1 + 2 * r2]) / 6
+        mass = 2 * np.pi * length[:, None, None] / 12 * np.stack(
+            [np.column_stack([3 * r1 + r2, r1 + r2]), np.column_stack([r1 + r2, r1 + 3 * r2])],
+            axis=1)
+    else:
+        load = (length * model.depth_m / 2)[:, None].repeat(2, axis=1)
+        mass = (length * model.depth_m / 6)[:, None, None] * np.array([[2.0, 1.0], [1.0, 2.0]])
+    return load, mass
+
 
 @dataclass(frozen=True, repr=False)
 class System:
@@ -23,19 +141,22 @@ class System:
     Attributes
     ----------
     K : (n, n) CSR, W/K
-        Conduction plus the convection edge terms, before fixed temperatures.
+        Conduction, convection and interface terms at 25 °C conductivities, before fixed
+        temperatures; radiation linearised at the surroundings temperature.
     F : (n,) W
-        Sources, heat-flux edges and h·T_ambient terms.
+        Sources, heat-flux edges, h·T_ambient and linearised radiation terms.
     fixed, fixed_value
         Nodes held at a fixed temperature (°C) and their values.
     gradient : (2m, n) CSR, K/m per °C
-        Maps nodal temperatures to the constant gradient of each triangle
-        (rows 0..m-1: d/dx, rows m..2m-1: d/dy).
+        Maps nodal temperatures to the constant gradient of each triangle.
     kx, ky, qdot : (m,)
-        Conductivity W/(m·K) and generation W/m³ of each triangle.
+        Conductivity W/(m·K) (at 25 °C where it varies) and generation W/m³ per triangle.
+    edge : dict of (e,) arrays
+        Per exposed edge: ``h``, ``ambient``, ``flux``, ``emissivity``, ``surroundings``.
     """
 
     mesh: Mesh
+    layout: Layout
     K: sp.csr_matrix
     F: np.ndarray
     fixed: np.ndarray
@@ -44,11 +165,16 @@ class System:
     kx: np.ndarray
     ky: np.ndarray
     qdot: np.ndarray
+    edge: dict
     warnings: tuple[str, ...]
 
     @property
     def model(self):
         return self.mesh.model
+
+    @property
+    def nonlinear(self) -> bool:
+        return self.model.nonlinear
 
     def __repr__(self) -> str:
         return (f"System({self.K.shape[0]} unknowns, {self.K.nnz} non-zeros, "
@@ -56,12 +182,102 @@ class System:
 
     def qdot_power(self) -> float:
         """Total generated power, W."""
-        a = self.mesh.areas * self.model.unit_m ** 2
-        return float((self.qdot * a).sum() * self.model.depth_m)
+        return float((self.qdot * self.layout.volume).sum())
+
+    def conductivity(self, T: np.ndarray | None) -> tuple[np.ndarray, ...]:
+        """kx, ky and dkx/dT, dky/dT per triangle at nodal temperatures T (element means)."""
+        m = len(self.mesh.triangles)
+        if T is None or not any(mt.varies for mt in self.model.materials):
+            return self.kx, self.ky, np.zeros(m), np.zeros(m)
+        t_mean = T[self.mesh.triangles].mean(axis=1)
+        out = [self.kx.copy(), self.ky.copy(), np.zeros(m), np.zeros(m)]
+        for i, mt in enumerate(self.model.materials):
+            if mt.varies:
+                sel = self.mesh.triangle_material == i
+                for arr, val in zip(out, mt.k_at(t_mean[sel]), strict=True):
+                    arr[sel] = val
+        return tuple(out)
+
+    def residual(self, T: np.ndarray) -> np.ndarray:
+        """R(T) = K(T) T − F(T): zero at free nodes of a solution, the heat the fixed
+        temperatures put in at fixed nodes."""
+        if not self.nonlinear:
+            return self.K @ T - self.F
+        return self.residual_and_jacobian(T)[0]
+
+    def node_h(self, T: np.ndarray) -> np.ndarray:
+        """Per exposed edge end (e, 2): the heat transfer coefficient of the tangent
+        problem, h + 4εσT³ (kelvin), W/(m²·K)."""
+        tk = T[self.mesh.edges] + KELVIN
+        return self.edge["h"][:, None] + 4 * self.edge["emissivity"][:, None] * SIGMA * tk**3
+
+    def edge_heat_out(self, T: np.ndarray) -> np.ndarray:
+        """Heat leaving through each exposed edge by convection, radiation and imposed flux, W.
+
+        Convection ∫ h (T − T∞) dS; radiation εσ Σ_ij M_ij (T_j⁴ − T_sur⁴) (the same
+        interpolation as the residual); flux −∫ q″ dS.
+        """
+        L, e = self.layout, self.mesh.edges
+        mass_sum = L.edge_mass.sum(axis=1)                               # (e, 2): Σ_i M_ij
+        out = (self.edge["h"][:, None] * mass_sum * (T[e] - self.edge["ambient"][:, None])
+               ).sum(axis=1)
+        out -= self.edge["flux"] * L.edge_load.sum(axis=1)
+        rad = self.edge["emissivity"] > 0
+        if rad.any():
+            tk = T[e[rad]] + KELVIN
+            ts = (self.edge["surroundings"][rad] + KELVIN)[:, None]
+            out[rad] += (self.edge["emissivity"][rad] * SIGMA
+                         * (mass_sum[rad] * (tk**4 - ts**4)).sum(axis=1))
+        return out
+
+    def residual_and_jacobian(self, T: np.ndarray) -> tuple[np.ndarray, sp.csr_matrix]:
+        """R(T) = K(T) T − F(T) and its Jacobian, for the Newton iteration.
+
+        k(T): ∂(K_e T_e)_i/∂T_j = K_e,ij + (k'x (Kx_e T_e)_i + k'y (Ky_e T_e)_i)/3.
+        Radiation, T⁴ interpolated between nodes: R_i += εσ Σ_j M_ij (T_j⁴ − T_sur⁴), kelvin.
+        """
+        L, tri = self.layout, self.mesh.triangles
+        kx, ky, dkx, dky = self.conductivity(T)
+        ke = kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit
+        te = T[tri]
+        kxt = np.einsum("eij,ej->ei", L.kx_unit, te)
+        kyt = np.einsum("eij,ej->ei", L.ky_unit, te)
+        je = ke + ((dkx[:, None] * kxt + dky[:, None] * kyt)[:, :, None] / 3).repeat(3, axis=2)
+        K = self.K - self._stiffness(self.kx, self.ky) + self._stiffness(kx, ky)
+        J = K.copy()
+        J.data += np.bincount(L.tri_slots, (je - ke).ravel(), minlength=len(J.data))
+        R = K @ T - self.F
+        rad = self.edge["emissivity"] > 0
+        if rad.any():
+            e = self.mesh.edges[rad]
+            M = L.edge_mass[rad] * (self.edge["emissivity"][rad] * SIGMA)[:, None, None]
+            tk = T[e] + KELVIN
+            ts = (self.edge["surroundings"][rad] + KELVIN)[:, None]
+            # Remove the linearised radiation held in K and F, add the exact term.
+            h0 = 4 * ts**3
+            lin = np.einsum("eij,ej->ei", M * h0[:, :, None], T[e] + KELVIN - ts)
+            exact = np.einsum("eij,ej->ei", M, tk**4 - ts**4)
+            np.add.at(R, e.ravel(), (exact - lin).ravel())
+            jac = M * (4 * tk**3)[:, None, :] - M * h0[:, :, None]
+            J.data += np.bincount(L.edge_slots[np.repeat(rad, 4)], jac.ravel(),
+                                  minlength=len(J.data))
+        return R, J
+
+    def _stiffness(self, kx: np.ndarray, ky: np.ndarray) -> sp.csr_matrix:
+        L = self.layout
+        ke = kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit
+        return L.pattern.matrix(L.tri_slots, ke.ravel())
 
 
-def assemble(mesh: Mesh) -> System:
-    """Assemble conduction, sources and boundary terms.
+def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
+    """Assemble conduction, sources, boundary and interface terms.
+
+    Parameters
+    ----------
+    mesh
+        From :func:`~heat2d.mesh.build_mesh`.
+    layout
+        A layout built earlier for this mesh (reused across variants); built if None.
 
     Raises
     ------
@@ -69,107 +285,117 @@ def assemble(mesh: Mesh) -> System:
         A connected body has neither a fixed-temperature nor a convection boundary.
     """
     model = mesh.model
-    s, depth = model.unit_m, model.depth_m
+    L = layout or build_layout(mesh)
     n = len(mesh.points)
     tri = mesh.triangles
-    x, y = mesh.points[tri, 0], mesh.points[tri, 1]          # (m, 3), model units
-    b = np.column_stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]])
-    c = np.column_stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]])
-    area = 0.5 * (b[:, 0] * c[:, 1] - b[:, 1] * c[:, 0])     # model units²
-
     kx = np.array([mt.kx for mt in model.materials])[mesh.triangle_material]
     ky = np.array([mt.ky for mt in model.materials])[mesh.triangle_material]
 
-    # K_e = depth/(4A) (kx b bᵀ + ky c cᵀ)   [∫ k∇φ_i·∇φ_j dA; scale-free in 2-D]
-    ke = (kx[:, None, None] * b[:, :, None] * b[:, None, :]
-          + ky[:, None, None] * c[:, :, None] * c[:, None, :]) * (depth / (4 * area))[:, None, None]
-    rows = np.repeat(tri, 3, axis=1).ravel()
-    cols = np.tile(tri, (1, 3)).ravel()
-    data = [ke.ravel()]
-    row_parts, col_parts = [rows], [cols]
+    # K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV
+    values = [(kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit).ravel()]
+    slots = [L.tri_slots]
+    # F_i += ∫ q̇ φi dV
+    qdot = _generation(mesh, L.volume)
+    F = np.bincount(tri.ravel(), (qdot[:, None] * L.source).ravel(), minlength=n)
 
-    # Sources: F_i += q̇ A/3 · depth   [∫ q̇ φ_i dA]
-    area_m2 = area * s * s
-    qdot = _generation(mesh, area_m2)
-    F = np.bincount(tri.ravel(), np.repeat(qdot * area_m2 * depth / 3.0, 3), minlength=n)
-
-    # Boundary edges.
-    edges, owner = mesh.edges, mesh.edge_boundary
-    length = mesh.edge_lengths * s * depth                   # m² of surface per edge
-    kind = np.array([bc.kind for bc in model.boundaries] + ["none"])[owner]
-    value = {key: np.array([getattr(bc, key) or 0.0 for bc in model.boundaries] + [0.0])[owner]
-             for key in ("heat_flux", "h", "ambient", "temperature")}
-    # heat flux: F_i += q″ L/2
-    flux = kind == "heat_flux"
-    F += np.bincount(edges[flux].ravel(), np.repeat(value["heat_flux"][flux] * length[flux] / 2, 2),
+    edge = edge_values(mesh)
+    # heat flux: F_i += ∫ q″ φi dS
+    F += np.bincount(mesh.edges.ravel(), (edge["flux"][:, None] * L.edge_load).ravel(),
                      minlength=n)
-    # convection: K += h L/6 [[2, 1], [1, 2]],  F_i += h T∞ L/2   [∮ h (T − T∞) φ_i ds]
-    conv = kind == "convection"
-    e, hl = edges[conv], value["h"][conv] * length[conv]
-    row_parts += [e[:, 0], e[:, 1], e[:, 0], e[:, 1]]
-    col_parts += [e[:, 0], e[:, 1], e[:, 1], e[:, 0]]
-    data += [hl / 3, hl / 3, hl / 6, hl / 6]
-    F += np.bincount(e.ravel(), np.repeat(hl * value["ambient"][conv] / 2, 2), minlength=n)
-    K = sp.csr_matrix((np.concatenate(data), (np.concatenate(row_parts),
-                                              np.concatenate(col_parts))), shape=(n, n))
+    # convection + radiation linearised at T_sur: K += ∫ h φi φj dS, F += ∫ h T∞ φi dS,
+    # with h_r = 4εσT_sur³ and the surroundings carried in F (Newton corrects it later).
+    h_rad = 4 * edge["emissivity"] * SIGMA * (edge["surroundings"] + KELVIN) ** 3
+    h_total = edge["h"] + h_rad
+    values.append((h_total[:, None, None] * L.edge_mass).ravel())
+    slots.append(L.edge_slots)
+    t_far = (edge["h"] * edge["ambient"] + h_rad * edge["surroundings"])
+    F += np.bincount(mesh.edges.ravel(), (t_far[:, None] * L.edge_load).ravel(), minlength=n)
+    # interface: ∫ (T_a − T_b)(φ_a − φ_b)/R″ dS  →  [[M, −M], [−M, M]]/R″
+    if len(mesh.interface_id):
+        g = (1.0 / np.array([i.resistance for i in model.interfaces]))[mesh.interface_id]
+        m = g[:, None, None] * L.iface_mass
+        values.append(np.concatenate([m.ravel(), -m.ravel(), -m.ravel(), m.ravel()]))
+        slots.append(L.iface_slots)
+    K = L.pattern.matrix(np.concatenate(slots), np.concatenate(values))
 
-    # Fixed temperatures: the first entry in file order wins at a shared node.
-    fixed_edges = kind == "temperature"
-    e, t, who = edges[fixed_edges], value["temperature"][fixed_edges], owner[fixed_edges]
-    order = np.argsort(-who, kind="stable")                  # later entries first, then overwritten
-    node_value = np.full(n, np.nan)
-    node_value[e[order].ravel()] = np.repeat(t[order], 2)
-    fixed = np.flatnonzero(~np.isnan(node_value))
-    warnings = _conflicts(mesh, e, t, node_value)
+    fixed, fixed_value, warnings = _fixed(mesh, edge)
+    _check_heat_paths(mesh, K, fixed, h_total > 0)
+    return System(mesh=mesh, layout=L, K=K, F=F, fixed=fixed, fixed_value=fixed_value,
+                  gradient=_gradient(mesh), kx=kx, ky=ky, qdot=qdot, edge=edge,
+                  warnings=tuple(warnings))
 
-    # Gradient operator: ∇T = (Σ b_i T_i, Σ c_i T_i) / (2A), per metre.
+
+BOUNDARY_VALUES = ("temperature", "heat_flux", "h", "ambient", "emissivity", "surroundings")
+
+
+def edge_values(mesh: Mesh) -> dict[str, np.ndarray]:
+    """Boundary values per exposed edge (0 where they do not apply; NaN temperature)."""
+    bcs = mesh.model.boundaries
+    owner = mesh.edge_boundary
+    out = {}
+    for key in BOUNDARY_VALUES:
+        vals = [getattr(bc, key) for bc in bcs]
+        fill = np.nan if key == "temperature" else 0.0
+        table = np.array([fill if v is None else v for v in vals] + [fill], dtype=float)
+        out[key] = table[owner]
+    out["flux"] = out.pop("heat_flux")
+    return out
+
+
+def _gradient(mesh: Mesh) -> sp.csr_matrix:
+    """∇T per triangle, K/m: (Σ b_i T_i, Σ c_i T_i) / (2A), rows x then y."""
+    s = mesh.model.unit_m
+    tri = mesh.triangles
+    x, y = mesh.points[tri, 0], mesh.points[tri, 1]
+    b = np.column_stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]])
+    c = np.column_stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]])
+    two_a = (b[:, 0] * c[:, 1] - b[:, 1] * c[:, 0]) * s
     m = len(tri)
-    g_rows = np.concatenate([np.repeat(np.arange(m), 3), np.repeat(np.arange(m, 2 * m), 3)])
-    g_vals = np.concatenate([(b / (2 * area * s)[:, None]).ravel(),
-                             (c / (2 * area * s)[:, None]).ravel()])
-    gradient = sp.csr_matrix((g_vals, (g_rows, np.concatenate([tri.ravel(), tri.ravel()]))),
-                             shape=(2 * m, n))
-
-    _check_heat_paths(mesh, K, fixed, conv)
-    return System(mesh=mesh, K=K, F=F, fixed=fixed, fixed_value=node_value[fixed],
-                  gradient=gradient, kx=kx, ky=ky, qdot=qdot, warnings=tuple(warnings))
+    rows = np.concatenate([np.repeat(np.arange(m), 3), np.repeat(np.arange(m, 2 * m), 3)])
+    vals = np.concatenate([(b / two_a[:, None]).ravel(), (c / two_a[:, None]).ravel()])
+    return sp.csr_matrix((vals, (rows, np.concatenate([tri.ravel(), tri.ravel()]))),
+                         shape=(2 * m, len(mesh.points)))
 
 
-def _generation(mesh: Mesh, area_m2: np.ndarray) -> np.ndarray:
-    """Generation W/m³ per triangle: ``power`` spread over the shape's meshed (visible) area."""
+def _generation(mesh: Mesh, volume: np.ndarray) -> np.ndarray:
+    """Generation W/m³ per triangle: ``power`` spread over the shape's meshed (visible) volume."""
     model = mesh.model
-    shape_area = np.bincount(mesh.triangle_shape, area_m2, minlength=len(model.shapes))
+    shape_volume = np.bincount(mesh.triangle_shape, volume, minlength=len(model.shapes))
     per_shape = np.zeros(len(model.shapes))
     for i, shape in enumerate(model.shapes):
         if shape.power_density is not None:
             per_shape[i] = shape.power_density
-        elif shape.power is not None and shape_area[i] > 0:
-            per_shape[i] = shape.power / (shape_area[i] * model.depth_m)
+        elif shape.power is not None and shape_volume[i] > 0:
+            per_shape[i] = shape.power / shape_volume[i]
     return per_shape[mesh.triangle_shape]
 
 
-def _conflicts(mesh: Mesh, edges: np.ndarray, values: np.ndarray,
-               node_value: np.ndarray) -> list[str]:
-    """Warn where two fixed-temperature entries with different values meet at a node."""
-    if len(edges) == 0:
-        return []
-    differs = np.abs(node_value[edges] - values[:, None]) > 0
-    if not differs.any():
-        return []
-    node = edges[differs][0]
-    x, y = mesh.points[node]
-    return [f"fixed temperatures of different value meet at ({x:.6g}, {y:.6g}) and "
-            f"{int(differs.any(axis=1).sum())} other place(s); the entry first in the file "
-            "sets the shared node"]
+def _fixed(mesh: Mesh, edge: dict) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Fixed-temperature nodes; the entry first in the file wins at a shared node."""
+    n = len(mesh.points)
+    sel = ~np.isnan(edge["temperature"])
+    e, t, who = mesh.edges[sel], edge["temperature"][sel], mesh.edge_boundary[sel]
+    order = np.argsort(-who, kind="stable")                  # later entries first, overwritten
+    node_value = np.full(n, np.nan)
+    node_value[e[order].ravel()] = np.repeat(t[order], 2)
+    fixed = np.flatnonzero(~np.isnan(node_value))
+    warnings = []
+    differs = np.abs(node_value[e] - t[:, None]) > 0
+    if differs.any():
+        x, y = mesh.points[e[differs][0]]
+        warnings.append(f"fixed temperatures of different value meet at ({x:.6g}, {y:.6g}) and "
+                        f"{int(differs.any(axis=1).sum()) - 1} other place(s); the entry first "
+                        "in the file sets the shared node")
+    return fixed, node_value[fixed], warnings
 
 
 def _check_heat_paths(mesh: Mesh, K: sp.csr_matrix, fixed: np.ndarray,
-                      conv: np.ndarray) -> None:
+                      cooled: np.ndarray) -> None:
     """Each connected body needs a way to lose heat, or no steady state exists."""
     count, label = connected_components(K, directed=False)
     anchored = np.zeros(count, dtype=bool)
     anchored[label[fixed]] = True
-    anchored[label[mesh.edges[conv].ravel()]] = True
+    anchored[label[mesh.edges[cooled].ravel()]] = True
     if anchored.all():
         return
     body = int(np.flatnonzero(~anchored)[0])
@@ -177,6 +403,6 @@ def _check_heat_paths(mesh: Mesh, K: sp.csr_matrix, fixed: np.ndarray,
     names = [mesh.model.shapes[i].name for i in np.unique(mesh.triangle_shape[in_body])]
     where = "the body" if count == 1 else f"body {body + 1} of {count}"
     raise NoHeatPathError(
-        f"{where} (shapes: {', '.join(names)}) has no fixed-temperature or convection "
-        "boundary, so it has no steady temperature; give it a heat path",
+        f"{where} (shapes: {', '.join(names)}) has no fixed-temperature, convection or "
+        "radiation boundary, so it has no steady temperature; give it a heat path",
         file=mesh.model.source, entry="[[boundary]]")

@@ -35,6 +35,10 @@ class Geometry:
         True where a segment lies on the outline of the body or of a void.
     segment_boundary
         Index of the boundary entry claiming each segment; -1 where none does.
+    segment_interface
+        Index of the interface entry on each segment; -1 where none is.
+    segment_axis
+        True for segments on the axis of an axisymmetric model (symmetry, not exposed).
     seeds
         One row per face: x, y, shape index, target edge length.
     holes
@@ -48,6 +52,8 @@ class Geometry:
     segments: np.ndarray
     segment_exposed: np.ndarray
     segment_boundary: np.ndarray
+    segment_interface: np.ndarray
+    segment_axis: np.ndarray
     seeds: np.ndarray
     holes: np.ndarray
     visible: tuple
@@ -147,7 +153,13 @@ def build_geometry(model: Model) -> Geometry:
     a, b = vertices[segments[:, 0]], vertices[segments[:, 1]]
     mid = 0.5 * (a + b)
     exposed = _on(body.boundary, a, b, mid, tol)
+    axis = np.zeros(len(a), dtype=bool)
+    if model.axisymmetric:
+        # Edges on the axis (x = 0) are symmetry lines, not surfaces.
+        axis = exposed & (np.abs(a[:, 0]) <= tol) & (np.abs(b[:, 0]) <= tol)
+        exposed &= ~axis
     claims = _claims(model, polys, exposed, a, b, mid, tol)
+    interface = _interfaces(model, visible, exposed, a, b, mid, tol)
 
     _check_probes(model, body, tol)
     warnings = []
@@ -156,7 +168,8 @@ def build_geometry(model: Model) -> Geometry:
             powered = " and its power is lost" if (s.power or s.power_density) else ""
             warnings.append(f"shape \"{s.name}\" is fully covered by later shapes{powered}")
     return Geometry(model=model, vertices=vertices, segments=segments,
-                    segment_exposed=exposed, segment_boundary=claims, seeds=seeds,
+                    segment_exposed=exposed, segment_boundary=claims,
+                    segment_interface=interface, segment_axis=axis, seeds=seeds,
                     holes=holes, visible=tuple(visible), body=body, size=size,
                     tolerance=tol, warnings=tuple(warnings))
 
@@ -270,12 +283,41 @@ def _select(boundary: Boundary, polys: list[Polygon], model: Model, a: np.ndarra
         inside = [(p[:, 0] >= x0 - tol) & (p[:, 0] <= x1 + tol) & (p[:, 1] >= y0 - tol)
                   & (p[:, 1] <= y1 + tol) for p in (a, b)]
         return inside[0] & inside[1]
-    shape = model.shape(sel.shape)
+    members = model.members(sel.shape)
     if sel.kind == "shape":
-        return _on(polys[shape.index].boundary, a, b, mid, tol)
+        outline = shapely.union_all([polys[m.index].boundary for m in members])
+        return _on(outline, a, b, mid, tol)
     i, j = SIDE_CORNERS[sel.side]
-    side = LineString([shape.points[i], shape.points[j]])
-    return _on(side, a, b, mid, tol)
+    group = next((g for g in model.groups if g.name == sel.shape), None)
+    if group is not None and group.rect is not None:          # a stack: its outer rect
+        x0, y0, x1, y1 = group.rect
+        corners = ((x0, y0), (x1, y0), (x1, y1), (x0, y1))
+        sides = [LineString([corners[i], corners[j]])]
+    else:
+        sides = [LineString([m.points[i], m.points[j]]) for m in members]
+    return _on(shapely.union_all(sides), a, b, mid, tol)
+
+
+def _interfaces(model: Model, visible: list, exposed: np.ndarray, a: np.ndarray,
+                b: np.ndarray, mid: np.ndarray, tol: float) -> np.ndarray:
+    """Interior segments shared by the visible parts of each interface's two shapes."""
+    owner = np.full(len(a), -1)
+    for itf in model.interfaces:
+        va, vb = (visible[model.shape(n).index] for n in (itf.a, itf.b))
+        mask = (~exposed & _on(shapely.boundary(va), a, b, mid, tol)
+                & _on(shapely.boundary(vb), a, b, mid, tol))
+        if not mask.any():
+            raise GeometryError(f"shapes {itf.a!r} and {itf.b!r} share no edge (they must touch "
+                                "along a line where both are visible)", file=model.source,
+                                entry=f"interface \"{itf.name}\"", line=itf.line)
+        clash = mask & (owner >= 0)
+        if clash.any():
+            other = model.interfaces[owner[np.argmax(clash)]]
+            raise GeometryError(f"shares edges with interface \"{other.name}\"",
+                                file=model.source, entry=f"interface \"{itf.name}\"",
+                                line=itf.line)
+        owner[mask] = itf.index
+    return owner
 
 
 SELECTORS = ("side", "shape", "box", "exterior")

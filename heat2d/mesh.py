@@ -34,6 +34,13 @@ class Mesh:
         Exposed edges (outline of the body and of its voids).
     edge_boundary : (e,) int
         Boundary entry claiming each exposed edge; -1 = insulated.
+    interface_a, interface_b : (k, 2) int
+        The two sides of each interface edge: nodes on shape ``a``'s side and on shape
+        ``b``'s side (split copies where the interface has a contact resistance).
+    interface_id : (k,) int
+        Interface entry of each interface edge.
+    axis_length
+        Length of edges on the axis of an axisymmetric model (symmetry lines).
     """
 
     geometry: Geometry
@@ -43,6 +50,10 @@ class Mesh:
     triangle_material: np.ndarray
     edges: np.ndarray
     edge_boundary: np.ndarray
+    interface_a: np.ndarray
+    interface_b: np.ndarray
+    interface_id: np.ndarray
+    axis_length: float = 0.0
 
     @property
     def model(self):
@@ -136,10 +147,64 @@ def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
                         file=model.source)
     exposed = geometry.segment_exposed[marker]
     edges, edge_segment = seg[exposed], marker[exposed]
-    _check_outline(tris, edges, len(points), model.source)
+    axis = seg[geometry.segment_axis[marker]]
+    _check_outline(tris, np.vstack([edges, axis]), len(points), model.source)
+    on_iface = geometry.segment_interface[marker] >= 0
+    iface_edges, iface_id = seg[on_iface], geometry.segment_interface[marker[on_iface]]
+    iface_b = iface_edges
+    if len(iface_edges):
+        points, tris, edges, iface_b = _split_interfaces(model, points, tris, shape, edges,
+                                                         iface_edges, iface_id)
+    d = points[axis[:, 1]] - points[axis[:, 0]]
     return Mesh(geometry=geometry, points=points, triangles=tris, triangle_shape=shape,
                 triangle_material=material, edges=edges,
-                edge_boundary=geometry.segment_boundary[edge_segment])
+                edge_boundary=geometry.segment_boundary[edge_segment],
+                interface_a=iface_edges, interface_b=iface_b, interface_id=iface_id,
+                axis_length=float(np.hypot(d[:, 0], d[:, 1]).sum()))
+
+
+def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.ndarray,
+                      edges: np.ndarray, iface_edges: np.ndarray, iface_id: np.ndarray):
+    """Give shape ``b`` of each interface its own copy of the interface nodes.
+
+    A node is split when every triangle around it belongs to the interface's two shapes;
+    where a third shape meets the interface the node stays shared (the contact is then
+    short-circuited over half an edge there).
+    """
+    n = len(points)
+    side_a = np.array([model.shape(i.a).index for i in model.interfaces])
+    side_b = np.array([model.shape(i.b).index for i in model.interfaces])
+    node_iface = np.full(n, -1)
+    node_iface[iface_edges.ravel()] = np.repeat(iface_id, 2)
+    clash = np.zeros(n, dtype=bool)
+    clash[iface_edges.ravel()] = node_iface[iface_edges.ravel()] != np.repeat(iface_id, 2)
+    entry_node = tris.ravel()
+    entry_shape = np.repeat(shape, 3)
+    k = node_iface[entry_node]
+    foreign = (k >= 0) & (entry_shape != side_a[k]) & (entry_shape != side_b[k])
+    blocked = clash.copy()
+    np.logical_or.at(blocked, entry_node, foreign)
+    split = (node_iface >= 0) & ~blocked
+    new_id = np.full(n, -1)
+    new_id[split] = n + np.arange(split.sum())
+    # Exposed edges: find the triangle each belongs to before renumbering.
+    local = np.array([[0, 1], [1, 2], [2, 0]])
+    tri_edges = np.sort(tris[:, local].reshape(-1, 2), axis=1)
+    keys = tri_edges[:, 0] * n + tri_edges[:, 1]
+    order = np.argsort(keys)
+    e_keys = np.sort(edges, axis=1) @ np.array([n, 1])
+    owner = order[np.searchsorted(keys[order], e_keys)]          # flat index tri*3 + local
+    # Renumber shape b's side, in the triangles and in the exposed edges it owns.
+    move = split[entry_node] & (entry_shape == side_b[np.maximum(k, 0)])
+    flat = entry_node.copy()
+    flat[move] = new_id[entry_node[move]]
+    tris = flat.reshape(-1, 3)
+    edge_shape = shape[owner // 3][:, None]
+    move_edge = split[edges] & (edge_shape == side_b[np.maximum(node_iface[edges], 0)])
+    edges = np.where(move_edge, new_id[edges], edges)
+    b_side = np.where(split[iface_edges], new_id[iface_edges], iface_edges)
+    points = np.vstack([points, points[split]])
+    return points, tris, edges, b_side
 
 
 def _check_outline(tris: np.ndarray, edges: np.ndarray, n: int, source: str) -> None:

@@ -99,34 +99,30 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     return best, bary / bary.sum()
 
 
-def compute_results(solution: Solution, *, timings: dict[str, float] | None = None) -> Result:
+def compute_results(solution: Solution, *, timings: dict[str, float] | None = None,
+                    resistances: bool = True) -> Result:
     """Derive the summary from a solution.
 
-    Raises
-    ------
-    ModelError
-        A probe lies outside the body.
+    Parameters
+    ----------
+    solution
+        From :func:`~heat2d.solve.solve`.
+    timings
+        Stage timings to record, seconds.
+    resistances
+        Compute the °C/W matrix of the powered shapes (one solve per source).
     """
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature
     tri = mesh.triangles
-    s, depth = model.unit_m, model.depth_m
 
+    kx, ky, _, _ = system.conductivity(T)
     grad = (system.gradient @ T).reshape(2, -1)
-    flux = -np.column_stack([system.kx * grad[0], system.ky * grad[1]])    # q = −k∇T
+    flux = -np.column_stack([kx * grad[0], ky * grad[1]])                  # q = −k∇T
 
-    area = mesh.areas
-    power = system.qdot * area * s * s * depth
-    ns = len(model.shapes)
+    volume = system.layout.volume
     t_tri = T[tri]
-    shape = mesh.triangle_shape
-    s_min = np.full(ns, np.inf)
-    s_max = np.full(ns, -np.inf)
-    np.minimum.at(s_min, shape, t_tri.min(axis=1))
-    np.maximum.at(s_max, shape, t_tri.max(axis=1))
-    s_area = np.bincount(shape, area, minlength=ns)
-    s_mean = np.bincount(shape, area * t_tri.mean(axis=1), minlength=ns)     # exact for P1
-    s_power = np.bincount(shape, power, minlength=ns)
+    stats = _shape_stats(mesh, t_tri, volume, system.qdot * volume)
 
     # Hot spot: hottest node; its shape is that of the hottest triangle around it.
     node = int(np.argmax(T))
@@ -139,38 +135,52 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
         k, bary = locate(mesh.points, tri, probe.x, probe.y, mesh.geometry.tolerance)
         if k < 0:
             raise ModelError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body",
-                             file=model.source, entry=f"probe \"{probe.name}\"", line=probe.line)
+                             file=model.source, entry=f"probe \"{probe.name}\"",
+                             line=probe.line)
         probes[probe.name] = float(bary @ T[tri[k]])
 
     warnings = [*mesh.geometry.warnings, *system.warnings, *solution.notes]
     if abs(balance["relative_error"]) > 1e-6:
         warnings.append(f"energy balance closes only to {balance['relative_error']:.1e}")
+    shapes = {sh.name: {"material": sh.material, **stats[i]}
+              for i, sh in enumerate(model.shapes) if not sh.void}
+    limits = _limits(model, shapes)
+    for name, lim in limits.items():
+        if lim["exceeded"]:
+            warnings.append(f"shape \"{name}\" reaches {lim['max']:.1f} °C, above its limit "
+                            f"{lim['limit']:g} °C")
+    depth_text = ("full revolution (axisymmetric)" if model.axisymmetric
+                  else f"depth {model.depth:g} {model.length_unit}")
     summary: dict[str, Any] = {
         "heat2d_version": __version__,
         "model": {"file": model.source, "title": model.title, "length_unit": model.length_unit,
-                  "depth": model.depth, "params": dict(model.params)},
+                  "depth": None if model.axisymmetric else model.depth,
+                  "axisymmetric": model.axisymmetric, "params": dict(model.params)},
         "units": {"length": model.length_unit, "temperature": "degC", "power": "W",
-                  "heat_flux": "W/m^2", "area": f"{model.length_unit}^2"},
+                  "heat_flux": "W/m^2", "area": f"{model.length_unit}^2",
+                  "powers_and_heat_flows_for": depth_text},
         "temperature": {"max": float(T.max()), "min": float(T.min())},
         "hot_spot": {"x": float(mesh.points[node, 0]), "y": float(mesh.points[node, 1]),
                      "temperature": float(T[node]),
-                     "shape": model.shapes[shape[hot_tri]].name},
-        "shapes": {
-            sh.name: ({"material": sh.material, "min": float(s_min[i]),
-                       "mean": float(s_mean[i] / s_area[i]), "max": float(s_max[i]),
-                       "power_w": float(s_power[i]), "area": float(s_area[i])}
-                      if s_area[i] > 0 else
-                      {"material": sh.material, "min": None, "mean": None, "max": None,
-                       "power_w": 0.0, "area": 0.0})
-            for i, sh in enumerate(model.shapes) if not sh.void},
+                     "shape": model.shapes[mesh.triangle_shape[hot_tri]].name},
+        "shapes": shapes,
+        "groups": {g.name: {"kind": g.kind, "members": list(g.members),
+                            **_group_stats([shapes[m] for m in g.members])}
+                   for g in model.groups},
         "boundaries": boundaries,
+        "interfaces": _interfaces(solution),
         "insulated_length": insulated,
+        "axis_length": mesh.axis_length if model.axisymmetric else None,
         "energy_balance": balance,
         "probes": probes,
+        "limits": limits,
         "mesh": {"nodes": len(mesh.points), "triangles": len(tri),
                  "min_angle_deg": mesh.min_angle(), "target_size": mesh.geometry.size},
         "solver": {"method": solution.method, "iterations": solution.iterations,
-                   "relative_residual": solution.residual},
+                   "relative_residual": solution.residual, "nonlinear": system.nonlinear,
+                   "history": [{"iteration": i, "max_change_k": c, "relative_residual": r}
+                               for i, c, r in solution.history]},
+        "thermal_resistance": _resistances(solution) if resistances else None,
         "ids": {"shape": [sh.name for sh in model.shapes],
                 "material": [m.name for m in model.materials]},
         "timings_s": dict(timings or {}),
@@ -180,54 +190,172 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
     return Result(solution=solution, heat_flux=flux, summary=summary)
 
 
+def _shape_stats(mesh, t_tri: np.ndarray, volume: np.ndarray, power: np.ndarray
+                 ) -> list[dict[str, Any]]:
+    """Per shape: min, volume-weighted mean (exact for linear elements), max, power, area."""
+    ns = len(mesh.model.shapes)
+    shape = mesh.triangle_shape
+    s_min = np.full(ns, np.inf)
+    s_max = np.full(ns, -np.inf)
+    np.minimum.at(s_min, shape, t_tri.min(axis=1))
+    np.maximum.at(s_max, shape, t_tri.max(axis=1))
+    s_vol = np.bincount(shape, volume, minlength=ns)
+    s_int = np.bincount(shape, volume * t_tri.mean(axis=1), minlength=ns)
+    s_power = np.bincount(shape, power, minlength=ns)
+    s_area = np.bincount(shape, mesh.areas, minlength=ns)
+    out = []
+    for i in range(ns):
+        if s_vol[i] > 0:
+            out.append({"min": float(s_min[i]), "mean": float(s_int[i] / s_vol[i]),
+                        "max": float(s_max[i]), "power_w": float(s_power[i]),
+                        "area": float(s_area[i]), "volume_m3": float(s_vol[i])})
+        else:
+            out.append({"min": None, "mean": None, "max": None, "power_w": 0.0, "area": 0.0,
+                        "volume_m3": 0.0})
+    return out
+
+
+def _group_stats(members: list[dict[str, Any]]) -> dict[str, Any]:
+    seen = [m for m in members if m["volume_m3"] > 0]
+    if not seen:
+        return {"min": None, "mean": None, "max": None, "power_w": 0.0}
+    vol = sum(m["volume_m3"] for m in seen)
+    return {"min": min(m["min"] for m in seen), "max": max(m["max"] for m in seen),
+            "mean": sum(m["mean"] * m["volume_m3"] for m in seen) / vol,
+            "power_w": sum(m["power_w"] for m in members)}
+
+
+def _limits(model, shapes: dict[str, dict[str, Any]]) -> dict[str, dict[str, Any]]:
+    out = {}
+    for sh in model.shapes:
+        if sh.max_temperature is not None and shapes[sh.name]["max"] is not None:
+            t = shapes[sh.name]["max"]
+            out[sh.name] = {"max": t, "limit": sh.max_temperature,
+                            "margin": sh.max_temperature - t,
+                            "exceeded": bool(t > sh.max_temperature)}
+    return out
+
+
+def _interfaces(solution: Solution) -> dict[str, dict[str, Any]]:
+    """Heat crossing each interface from a to b, ∫ (T_a − T_b)/R″ dS, and its mean jump."""
+    mesh, model, T = solution.mesh, solution.model, solution.temperature
+    if not model.interfaces:
+        return {}
+    mass = solution.system.layout.iface_mass.sum(axis=1)                     # (k, 2)
+    jump = T[mesh.interface_a] - T[mesh.interface_b]
+    area = mass.sum(axis=1)
+    conductance = (1.0 / np.array([i.resistance for i in model.interfaces]))[mesh.interface_id]
+    heat = conductance * (mass * jump).sum(axis=1)
+    ni = len(model.interfaces)
+    q = np.bincount(mesh.interface_id, heat, minlength=ni)
+    a = np.bincount(mesh.interface_id, area, minlength=ni)
+    j = np.bincount(mesh.interface_id, (mass * jump).sum(axis=1), minlength=ni)
+    jmax = np.zeros(ni)
+    np.maximum.at(jmax, mesh.interface_id, np.abs(jump).max(axis=1))
+    return {i.name: {"between": [i.a, i.b], "resistance": i.resistance,
+                     "heat_w": float(q[i.index]), "mean_jump": float(j[i.index] / a[i.index]),
+                     "max_abs_jump": float(jmax[i.index])} for i in model.interfaces}
+
+
 def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float], float]:
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature
     edges, owner = mesh.edges, mesh.edge_boundary
     nb = len(model.boundaries)
-    surface = mesh.edge_lengths * model.unit_m * model.depth_m                # m²
-    t_mean = T[edges].mean(axis=1)
-    kind = np.array([bc.kind for bc in model.boundaries] + ["none"])[owner]
-    get = {key: np.array([getattr(bc, key) or 0.0 for bc in model.boundaries] + [0.0])[owner]
-           for key in ("heat_flux", "h", "ambient")}
-
-    out = np.zeros(len(edges))
-    conv = kind == "convection"
-    out[conv] = get["h"][conv] * surface[conv] * (t_mean[conv] - get["ambient"][conv])
-    flux = kind == "heat_flux"
-    out[flux] = -get["heat_flux"][flux] * surface[flux]
-    # Fixed temperatures: reaction R = K T − F is the heat the reservoir puts in at each
-    # node; it is shared among the fixed edges at that node by their half-lengths.
-    fixed = kind == "temperature"
-    reaction = system.K @ T - system.F
-    fe = edges[fixed]
-    half = np.repeat(surface[fixed] / 2, 2)
-    weight = np.bincount(fe.ravel(), half, minlength=len(T))
-    share = half / weight[fe.ravel()]
+    out = system.edge_heat_out(T)
+    is_fixed = ~np.isnan(system.edge["temperature"])
+    # Fixed temperatures: the residual R = K T − F is the heat the reservoir puts in at
+    # each fixed node; it is shared among the fixed edges at that node by their weights.
     heat = np.zeros(nb + 1)
-    np.add.at(heat, np.repeat(owner[fixed], 2), -reaction[fe.ravel()] * share)
-    heat[:nb] += np.bincount(owner[~fixed & (owner >= 0)], out[~fixed & (owner >= 0)],
-                             minlength=nb)[:nb]
+    _share_reactions(heat, system.residual(T), mesh, is_fixed, system.layout.edge_load)
+    rest = ~is_fixed & (owner >= 0)
+    heat[:nb] += np.bincount(owner[rest], out[rest], minlength=nb + 1)[:nb]
 
-    length = np.bincount(owner[owner >= 0], mesh.edge_lengths[owner >= 0], minlength=nb)
-    t_int = np.bincount(owner[owner >= 0], (mesh.edge_lengths * t_mean)[owner >= 0],
-                        minlength=nb)
+    lengths = mesh.edge_lengths
+    t_mean = T[edges].mean(axis=1)
+    claimed = owner >= 0
+    length = np.bincount(owner[claimed], lengths[claimed], minlength=nb)
+    t_int = np.bincount(owner[claimed], (lengths * t_mean)[claimed], minlength=nb)
     boundaries = {}
     for bc in model.boundaries:
         i = bc.index
-        boundaries[bc.name] = {"kind": bc.kind, "on": str(bc.selector),
+        boundaries[bc.name] = {"kind": bc.label, "on": str(bc.selector),
                                "heat_out_w": float(heat[i]),
                                "mean_temperature": float(t_int[i] / length[i]),
                                "length": float(length[i])}
     generated = system.qdot_power()
-    flux_in = float(-out[flux].sum())
-    heat_out = float(sum(heat[bc.index] for bc in model.boundaries if bc.kind != "heat_flux"))
+    flux_in = float((system.edge["flux"] * system.layout.edge_load.sum(axis=1)).sum())
+    heat_out = float(heat[:nb].sum()) + flux_in       # leaving by convection, radiation, fixed
     gross_in = generated + sum(max(-heat[i], 0.0) for i in range(nb))
     gross_out = sum(max(heat[i], 0.0) for i in range(nb))
     scale = max(gross_in, gross_out)
     power_in = generated + flux_in
     balance = {"power_in_w": power_in, "generated_w": generated, "heat_flux_in_w": flux_in,
                "heat_out_w": heat_out,
-               "relative_error": (power_in - heat_out) / scale if scale > 0 else 0.0}
-    insulated = float(mesh.edge_lengths[owner < 0].sum())
+               "relative_error": float((power_in - heat_out) / scale) if scale > 0 else 0.0}
+    insulated = float(lengths[owner < 0].sum())
     return boundaries, balance, insulated
+
+
+def _share_reactions(heat: np.ndarray, reaction: np.ndarray, mesh, is_fixed: np.ndarray,
+                     edge_load: np.ndarray) -> None:
+    """Add −R at fixed nodes to the boundaries whose fixed edges meet there."""
+    fe = mesh.edges[is_fixed].ravel()
+    w = edge_load[is_fixed].ravel()
+    total = np.bincount(fe, w, minlength=len(reaction))
+    np.add.at(heat, np.repeat(mesh.edge_boundary[is_fixed], 2),
+              -reaction[fe] * np.where(total[fe] > 0, w / np.where(total[fe] > 0, total[fe], 1),
+                                       0.5))
+
+
+def _resistances(solution: Solution) -> dict[str, Any] | None:
+    """Temperature rise per watt of each powered (or limited) shape for each source.
+
+    Unit-power solutions with homogeneous boundary values, one solve each with the
+    factorization already made; for nonlinear models the tangent system at the solved
+    state (small-signal resistances).
+    """
+    system, mesh, model = solution.system, solution.mesh, solution.model
+    if solution.factor is None:
+        return None
+    volume = system.layout.volume
+    power = np.bincount(mesh.triangle_shape, system.qdot * volume, minlength=len(model.shapes))
+    sources = [sh for sh in model.shapes if power[sh.index] > 0]
+    if not sources:
+        return None
+    rows = [sh for sh in model.shapes if not sh.void and (power[sh.index] > 0
+                                                          or sh.max_temperature is not None)]
+    free = solution.free
+    n = len(mesh.points)
+    T = solution.temperature
+    if system.nonlinear:
+        _, J = system.residual_and_jacobian(T)
+    else:
+        J = system.K
+    node_h = system.node_h(T)
+    tri = mesh.triangles
+    is_fixed = ~np.isnan(system.edge["temperature"])
+    mean_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
+    max_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
+    share: dict[str, dict[str, float]] = {}
+    for src in sources:
+        q = np.where(mesh.triangle_shape == src.index, system.qdot / power[src.index], 0.0)
+        f = np.bincount(tri.ravel(), (q[:, None] * system.layout.source).ravel(), minlength=n)
+        theta = np.zeros(n)
+        theta[free] = solution.factor(f[free])
+        t_tri = theta[tri]
+        stats = _shape_stats(mesh, t_tri, volume, np.zeros(len(tri)))
+        for r in rows:
+            mean_rise[r.name][src.name] = stats[r.index]["mean"]
+            max_rise[r.name][src.name] = stats[r.index]["max"]
+        heat = np.zeros(len(model.boundaries) + 1)
+        _share_reactions(heat, J @ theta - f, mesh, is_fixed, system.layout.edge_load)
+        e = mesh.edges
+        out = (system.layout.edge_mass.sum(axis=1) * node_h * theta[e]).sum(axis=1)
+        rest = ~is_fixed & (mesh.edge_boundary >= 0)
+        heat += np.bincount(mesh.edge_boundary[rest], out[rest], minlength=len(heat))
+        share[src.name] = {bc.name: float(heat[bc.index]) for bc in model.boundaries}
+    return {"sources": [s.name for s in sources],
+            "basis": "tangent at the solved state" if system.nonlinear else "linear",
+            "mean_rise_k_per_w": mean_rise, "max_rise_k_per_w": max_rise,
+            "heat_share": share}

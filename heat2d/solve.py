@@ -2,14 +2,18 @@
 
 Fixed temperatures are eliminated (the reduced matrix stays symmetric positive
 definite); the reduced system is solved by a sparse direct factorization or by
-conjugate gradients preconditioned with smoothed-aggregation multigrid.
+conjugate gradients preconditioned with smoothed-aggregation multigrid. A model
+whose conductivity depends on temperature, or that radiates, starts from that
+linear solution and is iterated with Newton's method; every iteration reuses the
+sparsity pattern and the fill-reducing ordering (or the multigrid hierarchy) of
+the first solve.
 """
 
 from __future__ import annotations
 
 import time
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -27,12 +31,83 @@ AUTO_DIRECT_LIMIT = 60_000
 ITERATIVE_TOL = 1e-10
 """Relative residual that multigrid CG must reach before its answer is taken."""
 ACCEPT_RESIDUAL = 1e-8
-"""A solve whose relative residual is above this is rejected."""
+"""A linear solve whose relative residual is above this is rejected."""
+NONLINEAR_TOL = 1e-6
+"""Newton stops when no nodal temperature changes by more than this (K)."""
+MAX_NONLINEAR_ITERATIONS = 40
+
+
+class Factor:
+    """Solves with one matrix, and refactors later matrices of the same pattern reusing
+    the fill-reducing ordering (direct) or the multigrid hierarchy (iterative)."""
+
+    def __init__(self, method: str, A: sp.csr_matrix) -> None:
+        self.method = method
+        self.order: np.ndarray | None = None
+        self.ml = None
+        self.iterations = 0
+        self.update(A, first=True)
+
+    def update(self, A: sp.csr_matrix, *, first: bool = False) -> None:
+        import scipy.sparse.linalg as spla
+
+        self.A = A
+        if self.method == "direct":
+            if first:
+                lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A",
+                               options={"SymmetricMode": True})
+                self.order = np.argsort(lu.perm_c)
+                self.lu = lu
+                self.permuted = False
+            else:
+                q = self.order
+                self.lu = spla.splu(A[q][:, q].tocsc(), permc_spec="NATURAL",
+                                    options={"SymmetricMode": True})
+                self.permuted = True
+        elif first:
+            import pyamg
+
+            self.ml = pyamg.smoothed_aggregation_solver(A, symmetry="symmetric", max_coarse=500)
+            self.symmetric = True
+        else:
+            self.symmetric = False
+
+    def __call__(self, b: np.ndarray) -> np.ndarray:
+        if self.method == "direct":
+            if not self.permuted:
+                self.iterations = 1
+                return self.lu.solve(b)
+            x = np.empty_like(b)
+            x[self.order] = self.lu.solve(b[self.order])
+            self.iterations = 1
+            return x
+        residuals: list[float] = []
+        if self.symmetric:
+            x = self.ml.solve(b, tol=ITERATIVE_TOL, accel="cg", maxiter=500,
+                              residuals=residuals)
+            self.iterations = max(len(residuals) - 1, 0)
+            return x
+        import scipy.sparse.linalg as spla
+
+        count = [0]
+
+        def tick(_):
+            count[0] += 1
+
+        x, _ = spla.gmres(self.A, b, M=self.ml.aspreconditioner(), rtol=ITERATIVE_TOL,
+                          restart=50, maxiter=20, callback=tick, callback_type="pr_norm")
+        self.iterations = count[0]
+        return x
 
 
 @dataclass(frozen=True, repr=False)
 class Solution:
-    """Nodal temperatures (°C) and how they were found."""
+    """Nodal temperatures (°C) and how they were found.
+
+    ``history`` lists the nonlinear iterations (iteration, largest temperature change in K,
+    relative residual); ``factor`` solves with the last matrix of the reduced system (for
+    unit-power solutions).
+    """
 
     system: System
     temperature: np.ndarray
@@ -41,6 +116,9 @@ class Solution:
     residual: float
     seconds: float
     notes: tuple[str, ...] = ()
+    history: tuple[tuple[int, float, float], ...] = ()
+    factor: Callable[[np.ndarray], np.ndarray] | None = field(default=None, compare=False)
+    free: np.ndarray | None = field(default=None, compare=False)
 
     @property
     def mesh(self):
@@ -56,46 +134,31 @@ class Solution:
                 f"residual {self.residual:.2e})")
 
 
-def _direct(A: sp.csr_matrix, b: np.ndarray) -> tuple[np.ndarray, int]:
-    import scipy.sparse.linalg as spla
-
-    lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A")
-    return lu.solve(b), 1
+METHODS = ("auto", "direct", "multigrid")
+"""Linear solvers: ``auto`` picks ``direct`` or ``multigrid`` by size."""
 
 
-def _multigrid(A: sp.csr_matrix, b: np.ndarray) -> tuple[np.ndarray, int]:
-    import pyamg
-
-    ml = pyamg.smoothed_aggregation_solver(A, symmetry="symmetric", max_coarse=500)
-    residuals: list[float] = []
-    x = ml.solve(b, tol=ITERATIVE_TOL, accel="cg", maxiter=500, residuals=residuals)
-    return x, max(len(residuals) - 1, 0)
-
-
-SOLVERS: dict[str, Callable[[sp.csr_matrix, np.ndarray], tuple[np.ndarray, int]]] = {  # noqa: F821
-    "direct": _direct,
-    "multigrid": _multigrid,
-}
-"""Linear solvers by name; ``auto`` picks one by size."""
-METHODS = ("auto", *SOLVERS)
-
-
-def solve(system: System, *, method: str = "auto") -> Solution:
-    """Solve K T = F with the fixed temperatures eliminated.
+def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
+          max_iterations: int = MAX_NONLINEAR_ITERATIONS) -> Solution:
+    """Solve K T = F with the fixed temperatures eliminated (Newton for nonlinear models).
 
     Parameters
     ----------
     system
         From :func:`~heat2d.assembly.assemble`.
     method
-        ``auto``, ``direct`` or ``multigrid``. ``auto`` factorizes small
-        systems and uses multigrid CG on large ones, falling back to the direct
-        solver if the iterative one misses its tolerance.
+        ``auto``, ``direct`` or ``multigrid``. ``auto`` factorizes small systems and uses
+        multigrid CG on large ones, falling back to the direct solver if the iterative
+        one misses its tolerance.
+    tol
+        Nonlinear models: stop when the largest temperature change is below this (K).
+    max_iterations
+        Nonlinear models: give up after this many Newton iterations.
 
     Raises
     ------
     SolveError
-        Unknown method, or no solver reached an acceptable residual.
+        Unknown method, no solver reached an acceptable residual, or Newton did not converge.
     """
     if method not in METHODS:
         raise SolveError(f"unknown solver method {method!r} (choose from: "
@@ -107,35 +170,79 @@ def solve(system: System, *, method: str = "auto") -> Solution:
     free = np.ones(n, dtype=bool)
     free[system.fixed] = False
     if not free.any():
-        return Solution(system, T, "none", 0, 0.0, time.perf_counter() - start)
+        return Solution(system, T, "none", 0, 0.0, time.perf_counter() - start, free=free)
     K = system.K.tocsr()
     Kf = K[free]
-    Kff = Kf[:, free]
+    Kff = Kf[:, free].tocsr()
     rhs = system.F[free] - Kf[:, system.fixed] @ system.fixed_value    # F_f − K_fd T_d
 
     chosen = method if method != "auto" else (
         "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
     notes: list[str] = []
-    x, iterations, residual = _attempt(chosen, Kff, rhs)
+    factor, x, residual = _attempt(chosen, Kff, rhs)
     if residual > ACCEPT_RESIDUAL and chosen != "direct":
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
-        x, iterations, residual = _attempt(chosen, Kff, rhs)
+        factor, x, residual = _attempt(chosen, Kff, rhs)
     if not np.isfinite(residual) or residual > ACCEPT_RESIDUAL:
         raise SolveError(f"linear solve failed: relative residual {residual:.2e} with {chosen}",
                          file=system.model.source)
     T[free] = x
+    iterations = factor.iterations
+    history: list[tuple[int, float, float]] = []
+    if system.nonlinear:
+        T, residual, history, iterations = _newton(system, T, free, factor, tol, max_iterations)
     return Solution(system, T, chosen, iterations, residual, time.perf_counter() - start,
-                    tuple(notes))
+                    tuple(notes), tuple(history), factor, free)
 
 
-def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray) -> tuple[np.ndarray, int, float]:
+def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray) -> tuple[Factor, np.ndarray, float]:
     try:
-        x, iterations = SOLVERS[name](A, b)
+        factor = Factor(name, A)
+        x = factor(b)
     except (RuntimeError, ValueError, np.linalg.LinAlgError) as exc:
         if name == "direct":
             raise SolveError(f"direct solve failed: {exc}") from exc
-        return np.zeros_like(b), 0, np.inf
+        return None, np.zeros_like(b), np.inf
+    return factor, x, _relative(A, x, b)
+
+
+def _relative(A: sp.csr_matrix, x: np.ndarray, b: np.ndarray) -> float:
     scale = np.linalg.norm(b)
     r = np.linalg.norm(b - A @ x)
-    return x, iterations, float(r / scale) if scale > 0 else float(r)
+    return float(r / scale) if scale > 0 else float(r)
+
+
+def _newton(system: System, T: np.ndarray, free: np.ndarray, factor: Factor, tol: float,
+            max_iterations: int) -> tuple[np.ndarray, float, list, int]:
+    """Newton on R(T) = K(T) T − F(T) = 0 at the free nodes, with step halving."""
+    scale = max(np.abs(system.F).sum(), np.abs(system.K @ T).sum(), 1e-300)
+    history = []
+    total = factor.iterations
+    R, J = system.residual_and_jacobian(T)
+    norm = np.linalg.norm(R[free]) / scale
+    for it in range(1, max_iterations + 1):
+        Jff = J[free][:, free].tocsr()
+        factor.update(Jff)
+        step = -factor(R[free])
+        total += factor.iterations
+        alpha = 1.0
+        while True:
+            trial = T.copy()
+            trial[free] += alpha * step
+            R_new, J_new = system.residual_and_jacobian(trial)
+            new = np.linalg.norm(R_new[free]) / scale
+            if new <= norm or alpha < 1 / 32 or not np.isfinite(norm):
+                break
+            alpha /= 2
+        change = float(np.abs(alpha * step).max())
+        T, R, J, norm = trial, R_new, J_new, new
+        history.append((it, change, float(norm)))
+        if not np.all(np.isfinite(T)):
+            break
+        if change < tol:
+            return T, float(norm), history, total
+    last = history[-1] if history else (0, np.nan, np.nan)
+    raise SolveError(f"nonlinear solve did not converge in {max_iterations} iterations: last "
+                     f"temperature change {last[1]:.3g} K (tolerance {tol:g} K)",
+                     file=system.model.source)

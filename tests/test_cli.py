@@ -76,7 +76,7 @@ def test_set_overrides_a_param(model_file, tmp_path):
     ({'on = "board.left"': 'on = "pad.bottom"'}, r'boundary "rail": on = .* selects no exposed'),
     ({"at = [10, 0.8]": "at = [10, 9]"}, r'probe "centre": at = \[10, 9\] is not inside'),
     ({"h = 10\nambient = 40": "heat_flux = 0", "temperature = 50": "heat_flux = 10"},
-     r"\[\[boundary\]\]: the body \(shapes: board, pad\) has no fixed-temperature"),
+     r"\[\[boundary\]\]: the body \(shapes: board, pad\) has no fixed-temperature, convection"),
 ])
 def test_bad_model_exits_2_with_one_line_and_writes_nothing(tmp_path, capsys, change, message):
     path = tmp_path / "bad.toml"

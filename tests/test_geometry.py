@@ -158,7 +158,7 @@ def test_a_body_without_heat_path_is_named():
     text = board(extra=rect("island", "fr4", 30, 0, 2, 2)).replace('on = "exterior"',
                                                                    'on = "board.top"')
     with pytest.raises(NoHeatPathError, match=r"body 2 of 2 \(shapes: island\) has no "
-                       r"fixed-temperature or convection boundary"):
+                       r"fixed-temperature, convection or radiation boundary"):
         assemble(build_mesh(build_geometry(heat2d.parse(text))))
 
 

@@ -55,7 +55,7 @@ BAD = [
     (board({"temperature = 50": "temperature = -300"}), r"temperature: must be > -273.15"),
     (board({"power = \"power\"": "power = -1"}), r'shape "pad": power: must be >= 0 W'),
     (board({"width = 20": "width = 0"}), r'shape "board": rect.width: must be > 0'),
-    (board({'name = "pad"': 'name = "board"'}), r'shape "board": name already used by shape #1'),
+    (board({'name = "pad"': 'name = "board"'}), r'shape "board": name already used by another shape, stack or repeat \(line 22\)'),
     (board({'length_unit = "mm"': 'length_unit = "inch"'}), r"length_unit: must be one of m, mm, um"),
     (board(extra="[mesh]\nmin_angle = 40\n"), r"min_angle: must be <= 34 degrees"),
     (board({"\nh = 10\n": "\n"}), r'boundary "air": ambient needs h'),
@@ -103,7 +103,7 @@ def test_side_selector_needs_a_rect():
 
 def test_void_takes_no_material_or_power():
     text = board({'material = "copper"': "void = true"})
-    with pytest.raises(ModelError, match=r'shape "pad": a void shape cannot dissipate power'):
+    with pytest.raises(ModelError, match=r'shape "pad": power: a void shape takes no power'):
         heat2d.parse(text)
 
 
