@@ -554,8 +554,8 @@ class _Reader:
 
     def read_shapes(self, data: dict[str, Any]) -> tuple[list[Shape], list[Group]]:
         """Shapes and stacks in file order (the painting order), repeats expanded."""
-        entries = [("shape", i, spec) for i, spec in enumerate(self.array_of_tables(data, "shape"))]
-        entries += [("stack", i, spec) for i, spec in enumerate(self.array_of_tables(data, "stack"))]
+        entries = [(table, i, spec) for table in ("shape", "stack")
+                   for i, spec in enumerate(self.array_of_tables(data, table))]
         entries.sort(key=lambda e: self.index.find(e[0], e[1]) or 0)
         shapes: list[Shape] = []
         groups: list[Group] = []
@@ -589,7 +589,8 @@ class _Reader:
         if name == "exterior" or any(name.endswith("." + side) for side in SIDES) \
                 or "[" in name:
             raise self.fail(entry, "name clashes with a selector: it may not be exterior, end "
-                            "in .left/.right/.top/.bottom, or hold [", self.index.find(*where, "name"))
+                            "in .left/.right/.top/.bottom, or hold [",
+                            self.index.find(*where, "name"))
         return name, entry
 
     def material_ref(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> str:
