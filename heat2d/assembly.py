@@ -38,8 +38,12 @@ class Pattern:
         """Slots of entries that are already in the pattern."""
         return np.searchsorted(self.keys, rows.astype(np.int64) * self.n + cols)
 
-    def matrix(self, slots: np.ndarray, values: np.ndarray) -> sp.csr_matrix:
-        data = np.bincount(slots, values, minlength=len(self.indices))
+    def data(self, slots: np.ndarray, values: np.ndarray) -> np.ndarray:
+        """The CSR data array holding ``values`` summed into their slots."""
+        return np.bincount(slots, values, minlength=len(self.indices))
+
+    def matrix(self, data: np.ndarray) -> sp.csr_matrix:
+        """A matrix of this pattern; every matrix of one pattern shares index arrays."""
         return sp.csr_matrix((data, self.indices, self.indptr), shape=(self.n, self.n))
 
 
@@ -167,6 +171,7 @@ class System:
     qdot: np.ndarray
     edge: dict
     warnings: tuple[str, ...]
+    other_data: np.ndarray
 
     @property
     def model(self):
@@ -243,9 +248,9 @@ class System:
         kxt = np.einsum("eij,ej->ei", L.kx_unit, te)
         kyt = np.einsum("eij,ej->ei", L.ky_unit, te)
         je = ke + ((dkx[:, None] * kxt + dky[:, None] * kyt)[:, :, None] / 3).repeat(3, axis=2)
-        K = self.K - self._stiffness(self.kx, self.ky) + self._stiffness(kx, ky)
-        J = K.copy()
-        J.data += np.bincount(L.tri_slots, (je - ke).ravel(), minlength=len(J.data))
+        P = L.pattern
+        K = P.matrix(self.other_data + P.data(L.tri_slots, ke.ravel()))
+        J = P.matrix(self.other_data + P.data(L.tri_slots, je.ravel()))
         R = K @ T - self.F
         rad = self.edge["emissivity"] > 0
         if rad.any():
@@ -259,14 +264,8 @@ class System:
             exact = np.einsum("eij,ej->ei", M, tk**4 - ts**4)
             np.add.at(R, e.ravel(), (exact - lin).ravel())
             jac = M * (4 * tk**3)[:, None, :] - M * h0[:, :, None]
-            J.data += np.bincount(L.edge_slots[np.repeat(rad, 4)], jac.ravel(),
-                                  minlength=len(J.data))
+            J.data += P.data(L.edge_slots[np.repeat(rad, 4)], jac.ravel())
         return R, J
-
-    def _stiffness(self, kx: np.ndarray, ky: np.ndarray) -> sp.csr_matrix:
-        L = self.layout
-        ke = kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit
-        return L.pattern.matrix(L.tri_slots, ke.ravel())
 
 
 def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
@@ -292,8 +291,8 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
     ky = np.array([mt.ky for mt in model.materials])[mesh.triangle_material]
 
     # K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV
-    values = [(kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit).ravel()]
-    slots = [L.tri_slots]
+    conduction = (kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit).ravel()
+    values, slots = [], []
     # F_i += ∫ q̇ φi dV
     qdot = _generation(mesh, L.volume)
     F = np.bincount(tri.ravel(), (qdot[:, None] * L.source).ravel(), minlength=n)
@@ -316,13 +315,14 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
         m = g[:, None, None] * L.iface_mass
         values.append(np.concatenate([m.ravel(), -m.ravel(), -m.ravel(), m.ravel()]))
         slots.append(L.iface_slots)
-    K = L.pattern.matrix(np.concatenate(slots), np.concatenate(values))
+    other = L.pattern.data(np.concatenate(slots), np.concatenate(values))
+    K = L.pattern.matrix(other + L.pattern.data(L.tri_slots, conduction))
 
     fixed, fixed_value, warnings = _fixed(mesh, edge)
     _check_heat_paths(mesh, K, fixed, h_total > 0)
     return System(mesh=mesh, layout=L, K=K, F=F, fixed=fixed, fixed_value=fixed_value,
                   gradient=_gradient(mesh), kx=kx, ky=ky, qdot=qdot, edge=edge,
-                  warnings=tuple(warnings))
+                  warnings=tuple(warnings), other_data=other)
 
 
 BOUNDARY_VALUES = ("temperature", "heat_flux", "h", "ambient", "emissivity", "surroundings")

@@ -1,6 +1,7 @@
 """The ``heat2d`` command: a thin layer over the library that prints and picks exit codes.
 
-Exit status: 0 success, 1 internal or solver failure, 2 bad input (nothing written).
+Exit status: 0 success, 1 internal or solver failure, 2 bad input (nothing written),
+3 a temperature limit exceeded under ``run --strict`` (outputs are written).
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from pathlib import Path
 from . import __version__
 from .errors import Heat2dError, ModelError
 
-EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_LIMIT = 0, 1, 2, 3
 SLOW_STAGE_S = 1.0
 """Stages that take longer than this are announced on the terminal."""
 
@@ -81,6 +82,10 @@ def cmd_run(args: argparse.Namespace) -> int:
     if not args.quiet:
         print(format_summary(result.summary))
         print("\nwrote " + ", ".join(str(f) for f in files))
+    exceeded = [n for n, lim in result.summary["limits"].items() if lim["exceeded"]]
+    if exceeded and args.strict:
+        print(f"limit exceeded: {', '.join(exceeded)}", file=sys.stderr)
+        return EXIT_LIMIT
     return EXIT_OK
 
 
@@ -106,6 +111,14 @@ def cmd_check(args: argparse.Namespace) -> int:
     for bc in model.boundaries:
         print(f"{bc.name:<20} {bc.kind:<12} {str(bc.selector):<24} {claimed[bc.index]:>12.6g}")
     print(f"{'(insulated)':<20} {'':<12} {'':<24} {geometry.insulated_length():>12.6g}")
+    if model.interfaces:
+        print(f"\n{'interface':<20} {'between':<30} {'R″ m²K/W':>10}")
+        for itf in model.interfaces:
+            print(f"{itf.name:<20} {itf.a + ' / ' + itf.b:<30} {itf.resistance:>10.3g}")
+    print(f"\n{'material':<20} {'kx':>9} {'ky':>9}  W/(m·K) at 25 °C; note")
+    for m in model.materials:
+        varies = " (varies with T)" if m.varies else ""
+        print(f"{m.name:<20} {m.kx:>9.4g} {m.ky:>9.4g}  {m.note}{varies}")
     print(f"\nmesh: {len(mesh.points)} nodes, {len(mesh.triangles)} triangles, smallest angle "
           f"{mesh.min_angle():.1f}°, target size {geometry.size:g} {unit}")
     for w in geometry.warnings:
@@ -140,6 +153,8 @@ def build_parser() -> argparse.ArgumentParser:
             p.add_argument("--method", choices=sorted(METHODS), default="auto",
                            help="linear solver (default: auto)")
             p.add_argument("--quiet", action="store_true", help="print nothing on success")
+            p.add_argument("--strict", action="store_true",
+                           help="exit with status 3 when a shape exceeds its max_temperature")
     return parser
 
 

@@ -777,13 +777,14 @@ class _Reader:
         y = y0
         for j, layer in enumerate(layers):
             lname = layer.get("name")
-            lentry = f"{entry} layer {lname!r}" if isinstance(lname, str) else \
+            lentry = f"{entry} layer \"{lname}\"" if isinstance(lname, str) else \
                 f"{entry} layer #{j + 1}"
             self.check_keys(layer, "layer", lentry, where)
             lname = self.string(lname, lentry, "name", where)
             if lname in SIDES:
-                raise self.fail(lentry, "a layer cannot be called left, right, top or bottom",
-                                line)
+                raise self.fail(lentry, f"a layer cannot be called left, right, top or bottom "
+                                f"({name}.{lname} selects a side of the stack); try "
+                                f"{lname}_cu", line)
             t = self.number(layer.get("thickness"), lentry, "thickness", where, low=0.0,
                             low_open=True)
             material = self.material_ref(layer.get("material"), lentry, "material", where)

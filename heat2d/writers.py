@@ -125,7 +125,7 @@ def format_summary(summary: dict) -> str:
     lines = [
         f"heat2d {summary['heat2d_version']}: {summary['model']['file']}"
         + (f"  ({summary['model']['title']})" if summary["model"]["title"] else ""),
-        f"depth {summary['model']['depth']:g} {unit}; powers and heat flows are for this depth",
+        f"powers and heat flows are for the {summary['units']['powers_and_heat_flows_for']}",
         "",
         f"Hot spot      {hs['temperature']:.2f} °C in {hs['shape']!r} at "
         f"({hs['x']:.4g}, {hs['y']:.4g}) {unit}",
@@ -135,18 +135,37 @@ def format_summary(summary: dict) -> str:
         f"{'shape':<20} {'material':<14} {'min °C':>9} {'mean °C':>9} {'max °C':>9} "
         f"{'power W':>10}",
     ]
-    for name, s in summary["shapes"].items():
-        lines.append(f"{name:<20} {s['material'] or '':<14} {_fmt(s['min']):>9} "
+    for name, s in [*summary["shapes"].items(), *summary["groups"].items()]:
+        label = s.get("material") or f"({s['kind']})"
+        lines.append(f"{name:<20} {label:<14} {_fmt(s['min']):>9} "
                      f"{_fmt(s['mean']):>9} {_fmt(s['max']):>9} {s['power_w']:>10.4g}")
-    lines += ["", f"{'boundary':<20} {'kind':<12} {'heat out W':>11} {'share':>7} "
+    if summary["limits"]:
+        lines += ["", f"{'limit':<20} {'max °C':>9} {'limit °C':>9} {'margin K':>9}"]
+        for name, lim in summary["limits"].items():
+            flag = "  EXCEEDED" if lim["exceeded"] else ""
+            lines.append(f"{name:<20} {lim['max']:>9.2f} {lim['limit']:>9.2f} "
+                         f"{lim['margin']:>9.2f}{flag}")
+    lines += ["", f"{'boundary':<20} {'kind':<21} {'heat out W':>11} {'share':>7} "
               f"{'mean °C':>9} {'length ' + unit:>11}"]
     total_out = sum(max(b["heat_out_w"], 0.0) for b in summary["boundaries"].values())
     for name, b in summary["boundaries"].items():
         share = f"{100 * b['heat_out_w'] / total_out:.1f}%" if total_out > 0 else "-"
-        lines.append(f"{name:<20} {b['kind']:<12} {b['heat_out_w']:>11.4g} {share:>7} "
+        lines.append(f"{name:<20} {b['kind']:<21} {b['heat_out_w']:>11.4g} {share:>7} "
                      f"{b['mean_temperature']:>9.2f} {b['length']:>11.4g}")
-    lines.append(f"{'(insulated)':<20} {'':<12} {0:>11} {'':>7} {'':>9} "
+    lines.append(f"{'(insulated)':<20} {'':<21} {0:>11} {'':>7} {'':>9} "
                  f"{summary['insulated_length']:>11.4g}")
+    if summary["interfaces"]:
+        lines += ["", f"{'interface':<20} {'heat W':>11} {'mean jump K':>12} {'R″ m²K/W':>10}"]
+        for name, itf in summary["interfaces"].items():
+            lines.append(f"{name:<20} {itf['heat_w']:>11.4g} {itf['mean_jump']:>12.4g} "
+                         f"{itf['resistance']:>10.3g}")
+    res = summary.get("thermal_resistance")
+    if res and res["sources"]:
+        head = "".join(f" {s[:12]:>12}" for s in res["sources"])
+        lines += ["", f"{'rise K/W (mean)':<20}{head}   ({res['basis']})"]
+        for row, vals in res["mean_rise_k_per_w"].items():
+            lines.append(f"{row:<20}" + "".join(f" {_fmt(vals[s], '.4g'):>12}"
+                                                 for s in res["sources"]))
     if summary["probes"]:
         lines += ["", f"{'probe':<20} {'°C':>9}"]
         lines += [f"{name:<20} {t:>9.2f}" for name, t in summary["probes"].items()]
@@ -158,7 +177,8 @@ def format_summary(summary: dict) -> str:
         f"Mesh            {m['nodes']} nodes, {m['triangles']} triangles, smallest angle "
         f"{m['min_angle_deg']:.1f}°",
         f"Solver          {sv['method']}, {sv['iterations']} iteration(s), relative residual "
-        f"{sv['relative_residual']:.1e}",
+        f"{sv['relative_residual']:.1e}"
+        + (f", {len(sv['history'])} Newton step(s)" if sv["nonlinear"] else ""),
     ]
     lines += [f"warning: {w}" for w in summary["warnings"]]
     lines += ["", "CAUTION: " + summary["caution"]]
