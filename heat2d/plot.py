@@ -61,8 +61,8 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
                         ha="right" if right else "left", va="top" if upper else "bottom",
                         bbox={"boxstyle": "round", "fc": "black", "alpha": 0.6, "lw": 0})
         ax.set_aspect("equal")
-        ax.set_xlabel(f"x ({unit})")
-        ax.set_ylabel(f"y ({unit})")
+        ax.set_xlabel(f"r ({unit})" if model.axisymmetric else f"x ({unit})")
+        ax.set_ylabel(f"z ({unit})" if model.axisymmetric else f"y ({unit})")
     if zoom:
         half = 0.5 * ZOOM_WINDOW * (y1 - y0)
         cx = float(np.clip(hs["x"], x0 + half, x1 - half)) if x1 - x0 > 2 * half else hs["x"]
@@ -73,12 +73,22 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
 
         axes[0].add_patch(Rectangle((cx - half, y0), 2 * half, y1 - y0, fill=False,
                                     ec="cyan", lw=1.0, ls="--"))
-    bar = fig.colorbar(filled, ax=list(axes), shrink=0.9)
+    bar = fig.colorbar(filled, ax=list(axes), shrink=0.9, format="%.1f")
     bar.set_label("temperature (°C)")
     title = model.title or model.stem
-    axes[0].set_title(f"{title}: max {hs['temperature']:.1f} °C, "
-                      f"{summary['energy_balance']['power_in_w']:.3g} W over "
-                      f"{model.depth:g} {unit} depth", fontsize=10)
+    extent = ("full revolution" if model.axisymmetric else f"{model.depth:g} {unit} depth")
+    lines = [f"{title}: max {hs['temperature']:.1f} °C, "
+             f"{summary['energy_balance']['power_in_w']:.3g} W over {extent}"]
+    limits = []
+    for name, lim in summary.get("limits", {}).items():
+        state = (f"EXCEEDED by {-lim['margin']:.1f} K" if lim["exceeded"]
+                 else f"margin {lim['margin']:.1f} K")
+        limits.append(f"{name} {lim['max']:.1f} °C vs limit {lim['limit']:g} °C ({state})")
+    if limits:
+        lines.append("; ".join(limits))
+    axes[0].set_title("\n".join(lines), fontsize=10,
+                      color="firebrick" if any(v["exceeded"] for v in summary["limits"].values())
+                      else "black")
     fig.text(0.01, 0.002, "Estimate only: confirm against measurements and component ratings.",
              fontsize=7, color="0.35", va="bottom")
     if path is not None:
