@@ -95,8 +95,8 @@ def cmd_check(args: argparse.Namespace) -> int:
     from .model import load
 
     model = load(args.model, params=_parse_sets(args.set))
-    geometry = build_geometry(model)
-    mesh = build_mesh(geometry, refine=args.refine)
+    geometry = build_geometry(model, refine=args.refine)
+    mesh = build_mesh(geometry)
     unit = model.length_unit
     areas = geometry.visible_area
     claimed = geometry.claimed_length()

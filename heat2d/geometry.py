@@ -89,8 +89,15 @@ class Geometry:
                 f"{len(self.seeds)} faces, {len(self.holes)} holes, size={self.size:g})")
 
 
-def build_geometry(model: Model) -> Geometry:
+def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
     """Paint the shapes, build the graph and resolve the boundary selectors.
+
+    Parameters
+    ----------
+    model
+        From :func:`heat2d.load`.
+    refine
+        Divide every target edge length, circle chords included, by this factor.
 
     Raises
     ------
@@ -100,8 +107,9 @@ def build_geometry(model: Model) -> Geometry:
     extent = _extent(model)
     grid = 10.0 ** (math.floor(math.log10(extent)) - 9)
     tol = 8 * grid
-    size = model.mesh.size if model.mesh.size is not None else extent * DEFAULT_SIZE_FRACTION
-    polys = [_polygon(model, s, size, grid) for s in model.shapes]
+    size = (model.mesh.size if model.mesh.size is not None
+            else extent * DEFAULT_SIZE_FRACTION) / refine
+    polys = [_polygon(model, s, size, grid, refine) for s in model.shapes]
 
     # Painting: what later shapes leave of each shape.
     visible = [None] * len(polys)
@@ -143,7 +151,8 @@ def build_geometry(model: Model) -> Geometry:
         top[hit] = i
     void = np.array([s.void for s in model.shapes])
     is_hole = (top < 0) | void[np.maximum(top, 0)]
-    shape_size = np.array([s.mesh_size or size for s in model.shapes])
+    shape_size = np.array([s.mesh_size / refine if s.mesh_size else size
+                           for s in model.shapes])
     solid_faces = ~is_hole
     seeds = np.column_stack([fx[solid_faces], fy[solid_faces], top[solid_faces],
                              shape_size[top[solid_faces]]])
@@ -244,8 +253,8 @@ def _bbox_points(shape: Shape) -> np.ndarray:
     return np.asarray(shape.points, dtype=float)
 
 
-def _polygon(model: Model, shape: Shape, size: float, grid: float) -> Polygon:
-    local = shape.mesh_size or size
+def _polygon(model: Model, shape: Shape, size: float, grid: float, refine: float) -> Polygon:
+    local = shape.mesh_size / refine if shape.mesh_size else size
     outline = shape_outline(shape, local)
     poly = Polygon(outline)
     if not poly.is_valid or not poly.exterior.is_simple or poly.area <= 0:
@@ -335,7 +344,7 @@ def _claims(model: Model, polys: list[Polygon], exposed: np.ndarray, a: np.ndarr
             continue
         mask = _select(bc, polys, model, a, b, mid, tol) & exposed
         if not mask.any():
-            raise GeometryError(f"on = {str(bc.selector)!r} selects no exposed edge "
+            raise GeometryError(f"on = \"{bc.selector}\" selects no exposed edge "
                                 "(only the outline of the body and of its voids can carry "
                                 "a boundary)", file=model.source, entry=entry, line=bc.line)
         clash = mask & (owner >= 0)
@@ -344,8 +353,8 @@ def _claims(model: Model, polys: list[Polygon], exposed: np.ndarray, a: np.ndarr
             other = model.boundaries[owner[k]]
             raise GeometryError(
                 f"claims the same edge as boundary \"{other.name}\" near "
-                f"({mid[k, 0]:.6g}, {mid[k, 1]:.6g}) ({str(bc.selector)!r} and "
-                f"{str(other.selector)!r}); narrow one selector", file=model.source,
+                f"({mid[k, 0]:.6g}, {mid[k, 1]:.6g}) (\"{bc.selector}\" and "
+                f"\"{other.selector}\"); narrow one selector", file=model.source,
                 entry=entry, line=bc.line)
         owner[mask] = bc.index
     if len(exterior) > 1:

@@ -7,10 +7,11 @@ on a frozen :class:`Model` in the file's own length unit.
 
 from __future__ import annotations
 
+import copy
 import math
 import re
 import tomllib
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
@@ -217,7 +218,60 @@ class Model:
     axisymmetric: bool = False
     groups: tuple[Group, ...] = ()
     interfaces: tuple[Interface, ...] = ()
-    lines: Mapping[str, int] = field(default_factory=dict, compare=False, repr=False)
+    data: Mapping[str, Any] = field(default_factory=dict, compare=False, repr=False)
+    overrides: Mapping[str, float | str] = field(default_factory=dict, compare=False,
+                                                 repr=False)
+    paint_order: tuple[tuple[str, int], ...] = field(default=(), compare=False, repr=False)
+
+    # -- changing a model from Python: every change is checked like the text is.
+    def edited(self, change) -> Model:
+        """A new model from ``change(data)``, which edits a copy of the model's TOML data.
+
+        The result is checked exactly as a model file would be.
+        """
+        data = copy.deepcopy(dict(self.data))
+        order = list(self.paint_order)
+        change(data)
+        for table in ("shape", "stack"):                       # entries added by the change
+            known = {i for t, i in order if t == table}
+            order += [(table, i) for i in range(len(data.get(table, []))) if i not in known]
+        order = [(t, i) for t, i in order if i < len(data.get(t, []))]
+        return from_dict(data, source=self.source, params=self.overrides, paint_order=order)
+
+    def with_params(self, **values: float | str) -> Model:
+        """The model with parameters of ``[params]`` set (numbers or expressions)."""
+        unknown = sorted(set(values) - {name for name, _ in self.params})
+        if unknown:
+            raise ModelError(f"no such parameter in [params] to set (known: "
+                             f"{', '.join(n for n, _ in self.params) or 'none'})",
+                             file=self.source, entry=f"param \"{unknown[0]}\"")
+        merged = {**self.overrides, **values}
+        return from_dict(copy.deepcopy(dict(self.data)), source=self.source, params=merged,
+                         paint_order=self.paint_order)
+
+    def with_material(self, name: str, **spec: Any) -> Model:
+        """The model with material ``name`` added or replaced (keys as in [materials.NAME])."""
+        return self.edited(lambda d: d.setdefault("materials", {}).__setitem__(name, spec))
+
+    def with_shape(self, **spec: Any) -> Model:
+        """The model with a shape painted last (keys as in [[shape]])."""
+        return self.edited(lambda d: d.setdefault("shape", []).append(spec))
+
+    def with_boundary(self, **spec: Any) -> Model:
+        """The model with a boundary added, or replaced where the name exists."""
+        def change(d: dict[str, Any]) -> None:
+            items = d.setdefault("boundary", [])
+            names = [b.get("name") for b in items]
+            if spec.get("name") in names:
+                items[names.index(spec["name"])] = spec
+            else:
+                items.append(spec)
+        return self.edited(change)
+
+    def with_probe(self, name: str, at: tuple[float, float]) -> Model:
+        """The model with a probe added."""
+        return self.edited(lambda d: d.setdefault("probe", []).append(
+            {"name": name, "at": list(at)}))
 
     @property
     def unit_m(self) -> float:
@@ -310,8 +364,36 @@ def parse(text: str, *, source: str = "<string>",
         reason = re.sub(r"\s*\(at line \d+, column \d+\)", "", msg)
         raise ModelError(f"not valid TOML: {reason}", file=source, entry="syntax",
                          line=line) from None
-    reader = _Reader(source, _LineIndex(text))
-    return reader.read(data, dict(params or {}))
+    index = _LineIndex(text)
+    order = [(t, i) for t in ("shape", "stack")
+             for i in range(len(data.get(t, [])) if isinstance(data.get(t), list) else 0)]
+    order.sort(key=lambda e: index.find(*e) or 0)
+    return _Reader(source, index).read(data, dict(params or {}), order)
+
+
+def from_dict(data: Mapping[str, Any], *, source: str = "<dict>",
+              params: Mapping[str, float | str] | None = None,
+              paint_order: Sequence[tuple[str, int]] | None = None) -> Model:
+    """Check model data (the TOML structure as Python dicts and lists) and build a Model.
+
+    Parameters
+    ----------
+    data
+        As ``tomllib`` would read the model file.
+    source
+        Name used in messages.
+    params
+        Parameter overrides.
+    paint_order
+        (``"shape"`` or ``"stack"``, index) pairs in painting order; by default all
+        shapes, then all stacks.
+    """
+    data = copy.deepcopy(dict(data))
+    if paint_order is None:
+        paint_order = [(t, i) for t in ("shape", "stack")
+                       for i in range(len(data.get(t, [])) if isinstance(data.get(t), list)
+                                      else 0)]
+    return _Reader(source, _LineIndex("")).read(data, dict(params or {}), list(paint_order))
 
 
 class _LineIndex:
@@ -430,7 +512,9 @@ class _Reader:
         return value
 
     # -- sections
-    def read(self, data: dict[str, Any], overrides: dict[str, float | str]) -> Model:
+    def read(self, data: dict[str, Any], overrides: dict[str, float | str],
+             order: list[tuple[str, int]]) -> Model:
+        raw = copy.deepcopy(data)
         self.check_keys(data, "", "top level", ("", 0))
         model = self.table(data.get("model", {}), "[model]", "model", ("", 0))
         self.check_keys(model, "model", "[model]", ("model", 0))
@@ -456,7 +540,7 @@ class _Reader:
                             ("model", 0), low=0.0, low_open=True)
         materials = self.read_materials(data.get("materials", {}))
         self.materials = materials
-        shapes, groups = self.read_shapes(data)
+        shapes, groups = self.read_shapes(data, order)
         if axisymmetric:
             self.check_radius(shapes)
         by_name = {sh.name: sh for sh in shapes}
@@ -470,7 +554,8 @@ class _Reader:
                      materials=tuple(materials.values()), shapes=tuple(shapes),
                      boundaries=tuple(boundaries), probes=tuple(probes), mesh=mesh,
                      title=title, axisymmetric=axisymmetric, groups=tuple(groups),
-                     interfaces=tuple(interfaces))
+                     interfaces=tuple(interfaces), data=raw, overrides=dict(overrides),
+                     paint_order=tuple(order))
 
     def check_radius(self, shapes: list[Shape]) -> None:
         for sh in shapes:
@@ -552,11 +637,11 @@ class _Reader:
         t, k = np.array(table).T
         return float(np.interp(25.0, t, k)), table
 
-    def read_shapes(self, data: dict[str, Any]) -> tuple[list[Shape], list[Group]]:
-        """Shapes and stacks in file order (the painting order), repeats expanded."""
-        entries = [(table, i, spec) for table in ("shape", "stack")
-                   for i, spec in enumerate(self.array_of_tables(data, table))]
-        entries.sort(key=lambda e: self.index.find(e[0], e[1]) or 0)
+    def read_shapes(self, data: dict[str, Any], order: list[tuple[str, int]]
+                    ) -> tuple[list[Shape], list[Group]]:
+        """Shapes and stacks in painting order (file order), repeats expanded."""
+        tables = {t: self.array_of_tables(data, t) for t in ("shape", "stack")}
+        entries = [(t, i, tables[t][i]) for t, i in order]
         shapes: list[Shape] = []
         groups: list[Group] = []
         for table, i, spec in entries:

@@ -55,8 +55,8 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
             progress(name, "end")
         return value
 
-    geometry = stage("geometry", build_geometry, model)
-    mesh = stage("mesh", build_mesh, geometry, refine=refine)
+    geometry = stage("geometry", build_geometry, model, refine=refine)
+    mesh = stage("mesh", build_mesh, geometry)
     system = stage("assembly", assemble, mesh)
     solution = stage("solve", solve, system, method=method)
     start = time.perf_counter()

@@ -135,7 +135,7 @@ def test_two_entries_claiming_one_edge_is_an_error():
 def test_selector_matching_no_exposed_edge_is_an_error():
     # The pad's bottom lies inside the body, so it is not exposed.
     text = board({'on = "board.left"': 'on = "pad.bottom"'})
-    with pytest.raises(GeometryError, match=r'boundary "rail": on = \'pad.bottom\' selects no '
+    with pytest.raises(GeometryError, match=r'boundary "rail": on = "pad.bottom" selects no '
                        r'exposed edge'):
         build_geometry(heat2d.parse(text))
 
