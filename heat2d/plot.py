@@ -9,10 +9,11 @@ import numpy as np
 from .results import Result
 
 LEVELS = 24
-ZOOM_BELOW_ASPECT = 0.3
-"""Add a zoomed panel around the hot spot when the model is flatter than this."""
-ZOOM_WINDOW = 3.5
-"""Width of the zoomed panel, in model heights."""
+ZOOM_FRACTION = 0.3
+"""Add a panel zoomed on the hot shape when its window is smaller than this fraction of
+the model's width."""
+ZOOM_ASPECT = 3.0
+"""Width over height of the zoomed window."""
 
 
 def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None):
@@ -30,26 +31,35 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     x0, y0 = mesh.points.min(axis=0)
     x1, y1 = mesh.points.max(axis=0)
     aspect = (y1 - y0) / max(x1 - x0, 1e-300)
-    zoom = aspect < ZOOM_BELOW_ASPECT
+    hs = summary["hot_spot"]
+    window = _zoom_window(result, hs["shape"])
+    zoom = window[1] - window[0] < ZOOM_FRACTION * (x1 - x0)
     width = 11.0
     full_h = float(np.clip(width * 0.8 * aspect, 0.6, 7.5))
-    zoom_h = width * 0.8 / ZOOM_WINDOW if zoom else 0.0
+    zoom_h = width * 0.8 / ZOOM_ASPECT if zoom else 0.0
     if fig is None:
         fig = Figure(figsize=(width, full_h + zoom_h + 1.4 + (0.8 if zoom else 0.0)),
                      layout="constrained")
     axes = fig.subplots(2 if zoom else 1, 1, squeeze=False,
                         height_ratios=[full_h, zoom_h] if zoom else None)[:, 0]
     tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)
-    lo, hi = float(T.min()), float(T.max())
-    levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
-    hs = summary["hot_spot"]
     unit = model.length_unit
+    ranges = [(float(T.min()), float(T.max()))]
+    if zoom:
+        # The zoomed panel gets its own colour scale, so the detail near the hot spot shows.
+        wx0, wx1, wy0, wy1 = window
+        p = mesh.points
+        near = (p[:, 0] >= wx0) & (p[:, 0] <= wx1) & (p[:, 1] >= wy0) & (p[:, 1] <= wy1)
+        ranges.append((float(T[near].min()), float(T[near].max())))
     for k, ax in enumerate(axes):
-        filled = ax.tricontourf(tri, T, levels=levels, cmap="inferno")
+        lo, hi = ranges[k]
+        levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
+        filled = ax.tricontourf(tri, T, levels=levels, cmap="inferno", extend="both")
+        bar = fig.colorbar(filled, ax=ax, shrink=0.95, format="%.1f", pad=0.01)
+        bar.set_label("temperature (°C)")
         lines = ax.tricontour(tri, T, levels=levels[::4], colors="k", linewidths=0.4,
                               alpha=0.6)
-        if k == len(axes) - 1:
-            ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
+        ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
         _outlines(ax, result)
         ax.plot(hs["x"], hs["y"], marker="x", color="cyan", markersize=9, mew=2)
         if k == len(axes) - 1:
@@ -64,17 +74,13 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         ax.set_xlabel(f"r ({unit})" if model.axisymmetric else f"x ({unit})")
         ax.set_ylabel(f"z ({unit})" if model.axisymmetric else f"y ({unit})")
     if zoom:
-        half = 0.5 * ZOOM_WINDOW * (y1 - y0)
-        cx = float(np.clip(hs["x"], x0 + half, x1 - half)) if x1 - x0 > 2 * half else hs["x"]
-        axes[1].set_xlim(cx - half, cx + half)
-        axes[1].set_ylim(y0 - 0.02 * (y1 - y0), y1 + 0.02 * (y1 - y0))
+        axes[1].set_xlim(wx0, wx1)
+        axes[1].set_ylim(wy0, wy1)
         axes[1].set_title("around the hot spot", fontsize=9)
         from matplotlib.patches import Rectangle
 
-        axes[0].add_patch(Rectangle((cx - half, y0), 2 * half, y1 - y0, fill=False,
+        axes[0].add_patch(Rectangle((wx0, wy0), wx1 - wx0, wy1 - wy0, fill=False,
                                     ec="cyan", lw=1.0, ls="--"))
-    bar = fig.colorbar(filled, ax=list(axes), shrink=0.9, format="%.1f")
-    bar.set_label("temperature (°C)")
     title = model.title or model.stem
     extent = ("full revolution" if model.axisymmetric else f"{model.depth:g} {unit} depth")
     lines = [f"{title}: max {hs['temperature']:.1f} °C, "
@@ -94,6 +100,18 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     if path is not None:
         fig.savefig(path, dpi=110)
     return fig
+
+
+def _zoom_window(result: Result, shape: str) -> tuple[float, float, float, float]:
+    """A window of aspect ZOOM_ASPECT around the hot shape, three times its size."""
+    mesh = result.mesh
+    index = mesh.model.shape(shape).index
+    pts = mesh.points[np.unique(mesh.triangles[mesh.triangle_shape == index])]
+    (sx0, sy0), (sx1, sy1) = pts.min(axis=0), pts.max(axis=0)
+    w = max(3 * (sx1 - sx0), 3 * ZOOM_ASPECT * (sy1 - sy0))
+    h = w / ZOOM_ASPECT
+    cx, cy = 0.5 * (sx0 + sx1), 0.5 * (sy0 + sy1)
+    return cx - w / 2, cx + w / 2, cy - h / 2, cy + h / 2
 
 
 def _outlines(ax, result: Result) -> None:
