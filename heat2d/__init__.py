@@ -3,9 +3,12 @@
 The pipeline, one module per stage::
 
     model text --load/parse--> Model --build_geometry--> Geometry --build_mesh--> Mesh
-      --assemble--> System --solve--> Solution --compute_results--> Result --write--> files
+      --assemble--> System --solver.solve--> Solution --compute_results--> Result
+      --writers.write--> files
 
-:func:`run` chains the stages; the command line is a thin layer over it.
+:func:`solve` (also called :func:`run`) chains the stages; the command line is a thin
+layer over it. The solver stack (scipy, shapely, triangle) loads on first use, so
+``import heat2d`` and the command line's ``--help`` stay fast.
 """
 
 from __future__ import annotations
@@ -20,19 +23,24 @@ from .errors import (  # noqa: E402
     NoHeatPathError,
     SolveError,
 )
-from .model import Model, load, parse  # noqa: E402
+from .model import Model, from_dict, load, parse  # noqa: E402
 
 
-def __getattr__(name: str):
-    # The solver stack (scipy, shapely, triangle) loads on first use, so `import heat2d`
-    # and the command line's --help stay fast.
-    if name == "run":
-        from .pipeline import run
+def solve(model: Model, **options):
+    """Solve a model end to end and return its :class:`~heat2d.results.Result`.
 
-        return run
-    raise AttributeError(f"module 'heat2d' has no attribute {name!r}")
+    The same as :func:`heat2d.pipeline.run`; see there for the options
+    (``method``, ``refine``, ``reuse``, ``resistances``, ``progress``).
+    """
+    from .pipeline import run as _run
+
+    return _run(model, **options)
+
+
+run = solve
+"""The same as :func:`solve` (the command line's word)."""
 
 __all__ = [
     "GeometryError", "Heat2dError", "MeshError", "Model", "ModelError", "NoHeatPathError",
-    "SolveError", "__version__", "load", "parse", "run",
+    "SolveError", "__version__", "from_dict", "load", "parse", "run", "solve",
 ]

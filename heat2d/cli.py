@@ -133,7 +133,7 @@ COMMANDS: dict[str, tuple[Callable[[argparse.Namespace], int], str]] = {
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from .solve import METHODS
+    from .solver import METHODS
 
     parser = argparse.ArgumentParser(
         prog="heat2d", description="Steady 2-D heat conduction for circuit-board cross-sections.")

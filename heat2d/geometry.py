@@ -61,6 +61,7 @@ class Geometry:
     size: float
     tolerance: float
     warnings: tuple[str, ...]
+    refine: float = 1.0
 
     @property
     def visible_area(self) -> np.ndarray:
@@ -180,7 +181,7 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
                     segment_exposed=exposed, segment_boundary=claims,
                     segment_interface=interface, segment_axis=axis, seeds=seeds,
                     holes=holes, visible=tuple(visible), body=body, size=size,
-                    tolerance=tol, warnings=tuple(warnings))
+                    tolerance=tol, warnings=tuple(warnings), refine=refine)
 
 
 def _box_cuts(model: Model, body: shapely.Geometry, grid: float) -> np.ndarray:

@@ -1,16 +1,25 @@
-"""Chains the stages: Model -> Geometry -> Mesh -> System -> Solution -> Result."""
+"""Chains the stages: Model -> Geometry -> Mesh -> System -> Solution -> Result.
+
+A run may reuse an earlier result: when the new model differs only in values
+(materials, powers, boundary values, interface resistances, limits, params that
+feed only those), the geometry, mesh, sparsity pattern and element arrays are
+reused, and so is the factorization when the matrix is unchanged.
+"""
 
 from __future__ import annotations
 
 import time
 from collections.abc import Callable
+from dataclasses import replace
+
+import numpy as np
 
 from .assembly import assemble
 from .geometry import build_geometry
 from .mesh import build_mesh
 from .model import Model
 from .results import Result, compute_results
-from .solve import solve
+from .solver import solve
 
 Progress = Callable[[str, str], None]
 """Called as progress(stage, event) with event "start", then "end" or "failed"."""
@@ -18,8 +27,20 @@ Progress = Callable[[str, str], None]
 STAGES = ("geometry", "mesh", "assembly", "solve", "results")
 
 
+def geometry_key(model: Model, refine: float = 1.0) -> tuple:
+    """Everything the geometry and mesh depend on; equal keys mean a mesh can be reused."""
+    return (
+        model.length_unit, model.depth, model.axisymmetric, refine, model.mesh,
+        tuple((s.name, s.kind, s.points, s.circle, s.void, s.mesh_size) for s in model.shapes),
+        tuple((b.name, b.selector) for b in model.boundaries),
+        tuple((i.name, i.a, i.b) for i in model.interfaces),
+        tuple((p.name, p.x, p.y) for p in model.probes),
+    )
+
+
 def run(model: Model, *, method: str = "auto", refine: float = 1.0,
-        progress: Progress | None = None) -> Result:
+        progress: Progress | None = None, reuse: Result | None = None,
+        resistances: bool = True) -> Result:
     """Solve a model end to end.
 
     Parameters
@@ -29,9 +50,14 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
     method
         Linear solver: ``auto``, ``direct`` or ``multigrid``.
     refine
-        Divide every target edge length by this factor.
+        Divide every target edge length (and circle chord) by this factor.
     progress
         Optional callback told when each stage starts and ends.
+    reuse
+        An earlier result; its mesh and assembly structure are reused when the geometry
+        is unchanged (see :func:`geometry_key`), else it is ignored.
+    resistances
+        Compute the °C/W matrix of the powered shapes.
 
     Returns
     -------
@@ -55,11 +81,29 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
             progress(name, "end")
         return value
 
-    geometry = stage("geometry", build_geometry, model, refine=refine)
-    mesh = stage("mesh", build_mesh, geometry)
-    system = stage("assembly", assemble, mesh)
-    solution = stage("solve", solve, system, method=method)
+    old = reuse.solution if reuse is not None else None
+    if old is not None and geometry_key(old.model, old.mesh.geometry.refine) == \
+            geometry_key(model, refine):
+        mesh = stage("mesh", rebind, old.mesh, model)
+        system = stage("assembly", assemble, mesh, layout=old.system.layout)
+        same = (np.array_equal(system.K.data, old.system.K.data)
+                and np.array_equal(system.fixed, old.system.fixed) and not system.nonlinear)
+        solution = stage("solve", solve, system, method=method,
+                         factor=old.factor if same else None)
+    else:
+        geometry = stage("geometry", build_geometry, model, refine=refine)
+        mesh = stage("mesh", build_mesh, geometry)
+        system = stage("assembly", assemble, mesh)
+        solution = stage("solve", solve, system, method=method)
     start = time.perf_counter()
-    result = compute_results(solution, timings=timings)
+    result = compute_results(solution, timings=timings, resistances=resistances)
     result.summary["timings_s"]["results"] = time.perf_counter() - start
     return result
+
+
+def rebind(mesh, model: Model):
+    """The same mesh for a model with the same geometry and other values."""
+    geometry = replace(mesh.geometry, model=model)
+    material_index = {m.name: i for i, m in enumerate(model.materials)}
+    shape_material = np.array([material_index.get(s.material, -1) for s in model.shapes])
+    return replace(mesh, geometry=geometry, triangle_material=shape_material[mesh.triangle_shape])

@@ -15,7 +15,7 @@ import numpy as np
 
 from . import __version__
 from .errors import ModelError
-from .solve import Solution
+from .solver import Solution
 
 CAUTION = (
     "Estimates only: a 2-D section of an idealised model. Confirm against measurements and "
@@ -62,6 +62,13 @@ class Result:
     @property
     def hot_spot(self) -> dict[str, Any]:
         return self.summary["hot_spot"]
+
+    def save(self, out_dir, **options):
+        """Write the same files as ``heat2d run`` into ``out_dir``; see
+        :func:`heat2d.writers.write`."""
+        from .writers import write
+
+        return write(self, out_dir, **options)
 
     def temperature_at(self, x: float, y: float) -> float:
         """Temperature (°C) at a point of the body, interpolated linearly in its triangle."""

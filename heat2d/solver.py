@@ -139,7 +139,8 @@ METHODS = ("auto", "direct", "multigrid")
 
 
 def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
-          max_iterations: int = MAX_NONLINEAR_ITERATIONS) -> Solution:
+          max_iterations: int = MAX_NONLINEAR_ITERATIONS,
+          factor: Callable[[np.ndarray], np.ndarray] | None = None) -> Solution:
     """Solve K T = F with the fixed temperatures eliminated (Newton for nonlinear models).
 
     Parameters
@@ -154,6 +155,9 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         Nonlinear models: stop when the largest temperature change is below this (K).
     max_iterations
         Nonlinear models: give up after this many Newton iterations.
+    factor
+        The factor of an earlier solve whose reduced matrix equals this one (a variant
+        with other sources or boundary temperatures); it is reused instead of refactoring.
 
     Raises
     ------
@@ -179,7 +183,12 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     chosen = method if method != "auto" else (
         "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
     notes: list[str] = []
-    factor, x, residual = _attempt(chosen, Kff, rhs)
+    if factor is not None:
+        chosen = factor.method
+        x = factor(rhs)
+        residual = _relative(Kff, x, rhs)
+    else:
+        factor, x, residual = _attempt(chosen, Kff, rhs)
     if residual > ACCEPT_RESIDUAL and chosen != "direct":
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
