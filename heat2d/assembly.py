@@ -47,7 +47,7 @@ class Pattern:
         return sp.csr_matrix((data, self.indices, self.indptr), shape=(self.n, self.n))
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class Layout:
     """What depends on the mesh alone: element geometry, integration weights, pattern.
 
@@ -138,7 +138,7 @@ def _edge_terms(mesh: Mesh, edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return load, mass
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class System:
     """The assembled heat balance, with what the results stage needs to interpret it.
 

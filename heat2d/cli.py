@@ -70,7 +70,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     model = load(args.model, params=_parse_sets(args.set))
     progress = None if args.quiet else _Announcer(sys.stderr)
-    result = run(model, method=args.method, refine=args.refine, progress=progress)
+    result = run(model, method=args.method, refine=args.refine, progress=progress,
+                 estimate=not args.no_estimate)
     out = Path(args.out) if args.out else Path(f"{model.stem}-results")
     if progress:
         progress("writing", "start")
@@ -126,9 +127,23 @@ def cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_sweep(args: argparse.Namespace) -> int:
+    from .sweep import run_sweep_command
+
+    return run_sweep_command(args)
+
+
+def _sweep_arguments(p: argparse.ArgumentParser) -> None:
+    from .sweep import add_sweep_arguments
+
+    add_sweep_arguments(p)
+
+
 COMMANDS: dict[str, tuple[Callable[[argparse.Namespace], int], str]] = {
     "run": (cmd_run, "solve a model and write VTU, summary.json, summary.txt and a PNG map"),
     "check": (cmd_check, "validate and mesh a model without solving; list shapes and boundaries"),
+    "sweep": (cmd_sweep, "solve every combination of parameter values; write sweep.csv and "
+                         "sweep.png"),
 }
 
 
@@ -147,12 +162,16 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--refine", type=float, default=1.0, metavar="FACTOR",
                        help="divide every target mesh size by FACTOR (mesh-convergence checks)")
         p.add_argument("--debug", action="store_true", help="show tracebacks of failures")
+        if name == "sweep":
+            _sweep_arguments(p)
         if name == "run":
             p.add_argument("--out", metavar="DIR",
                            help="output folder (default: MODELSTEM-results)")
             p.add_argument("--method", choices=sorted(METHODS), default="auto",
                            help="linear solver (default: auto)")
             p.add_argument("--quiet", action="store_true", help="print nothing on success")
+            p.add_argument("--no-estimate", action="store_true",
+                           help="skip the discretization error estimate (two extra solves)")
             p.add_argument("--strict", action="store_true",
                            help="exit with status 3 when a shape exceeds its max_temperature")
     return parser

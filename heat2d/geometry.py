@@ -23,7 +23,7 @@ DEFAULT_SIZE_FRACTION = 1 / 50
 MIN_CIRCLE_SEGMENTS = 16
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class Geometry:
     """The planar straight-line graph handed to the mesher, in model length units.
 

@@ -7,7 +7,7 @@ regional attribute, and each face's target edge length becomes an area bound.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -18,7 +18,7 @@ EQUILATERAL_AREA = np.sqrt(3.0) / 4.0
 """Area of an equilateral triangle of unit side: target size h -> area bound."""
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class Mesh:
     """Linear triangles with their shape and material, and the exposed edges.
 
@@ -54,6 +54,7 @@ class Mesh:
     interface_b: np.ndarray
     interface_id: np.ndarray
     axis_length: float = 0.0
+    raw: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
     def model(self):
@@ -104,11 +105,7 @@ def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
     MeshError
         The mesher failed or returned a mesh inconsistent with the graph.
     """
-    import triangle
-
-    model = geometry.model
     regions = geometry.seeds.copy()
-    face_shape = regions[:, 2].astype(int)
     regions[:, 2] = np.arange(len(regions))
     regions[:, 3] = EQUILATERAL_AREA * (regions[:, 3] / refine) ** 2
     data = {
@@ -119,12 +116,44 @@ def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
     }
     if len(geometry.holes):
         data["holes"] = geometry.holes
+    return _finish(geometry, _triangulate(geometry, data, ""))
+
+
+def refine_mesh(mesh: Mesh, max_area: np.ndarray) -> Mesh:
+    """Refine a mesh where ``max_area`` (per triangle, length_unit²; ≤ 0 = no bound) asks,
+    keeping every graph segment, face and quality bound.
+
+    Parameters
+    ----------
+    mesh
+        From :func:`build_mesh` or an earlier :func:`refine_mesh`.
+    max_area
+        Area bound per triangle of ``mesh``.
+    """
+    raw = mesh.raw
+    data = {key: raw[key] for key in ("vertices", "triangles", "segments", "segment_markers",
+                                      "triangle_attributes")}
+    data["triangle_max_area"] = np.where(max_area > 0, max_area, -1.0)
+    return _finish(mesh.geometry, _triangulate(mesh.geometry, data, "r"))
+
+
+def _triangulate(geometry: Geometry, data: dict, mode: str) -> dict:
+    import triangle
+
+    model = geometry.model
     try:
-        out = triangle.triangulate(data, f"pq{model.mesh.min_angle:g}aAQ")
+        out = triangle.triangulate(data, f"{mode}pq{model.mesh.min_angle:g}aAQ")
     except Exception as exc:  # the C mesher reports failures as plain exceptions
         raise MeshError(f"mesher failed: {exc}", file=model.source) from exc
     if "triangles" not in out or len(out["triangles"]) == 0:
         raise MeshError("mesher returned no triangles", file=model.source)
+    return out
+
+
+def _finish(geometry: Geometry, out: dict) -> Mesh:
+    """Shapes, materials, orientation, exposed edges and interface splitting of a raw mesh."""
+    model = geometry.model
+    face_shape = geometry.seeds[:, 2].astype(int)
     points = out["vertices"]
     tris = out["triangles"].astype(np.int64)
     face = out["triangle_attributes"][:, 0].round().astype(int)
@@ -160,7 +189,9 @@ def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
                 triangle_material=material, edges=edges,
                 edge_boundary=geometry.segment_boundary[edge_segment],
                 interface_a=iface_edges, interface_b=iface_b, interface_id=iface_id,
-                axis_length=float(np.hypot(d[:, 0], d[:, 1]).sum()))
+                axis_length=float(np.hypot(d[:, 0], d[:, 1]).sum()),
+                raw={key: out[key] for key in ("vertices", "triangles", "segments",
+                                               "segment_markers", "triangle_attributes")})
 
 
 def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.ndarray,

@@ -40,7 +40,7 @@ def geometry_key(model: Model, refine: float = 1.0) -> tuple:
 
 def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         progress: Progress | None = None, reuse: Result | None = None,
-        resistances: bool = True) -> Result:
+        resistances: bool = True, estimate: bool = True) -> Result:
     """Solve a model end to end.
 
     Parameters
@@ -58,6 +58,9 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         is unchanged (see :func:`geometry_key`), else it is ignored.
     resistances
         Compute the °C/W matrix of the powered shapes.
+    estimate
+        Estimate the discretization error of every reported figure by solving on a
+        refined and a coarser mesh (see :mod:`heat2d.estimate`).
 
     Returns
     -------
@@ -98,7 +101,18 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
     start = time.perf_counter()
     result = compute_results(solution, timings=timings, resistances=resistances)
     result.summary["timings_s"]["results"] = time.perf_counter() - start
+    if estimate:
+        stage("estimate", _estimate, result, model, method, refine)
+        result.summary["timings_s"]["estimate"] = timings["estimate"]
     return result
+
+
+def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
+    from .estimate import annotate, estimate, ladder
+
+    others = [run(model, method=method, refine=refine * f, resistances=False, estimate=False)
+              for f in ladder(len(result.mesh.points))]
+    annotate(result.summary, estimate(result, others))
 
 
 def rebind(mesh, model: Model):

@@ -24,7 +24,7 @@ CAUTION = (
 )
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class Result:
     """A solved model: fields as numpy arrays and the summary figures.
 

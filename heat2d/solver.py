@@ -100,7 +100,7 @@ class Factor:
         return x
 
 
-@dataclass(frozen=True, repr=False)
+@dataclass(frozen=True, repr=False, eq=False)
 class Solution:
     """Nodal temperatures (°C) and how they were found.
 

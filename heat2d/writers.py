@@ -117,6 +117,11 @@ def _fmt(value: float | None, spec: str = ".2f") -> str:
     return "-" if value is None else format(value, spec)
 
 
+def _pm(error: float | None, spec: str = ".2g") -> str:
+    """' ± e' for an error estimate, or nothing where none was made."""
+    return "" if error is None else f" ± {error:{spec}}"
+
+
 def format_summary(summary: dict) -> str:
     """The run summary as a plain-text table."""
     unit = summary["units"]["length"]
@@ -127,32 +132,36 @@ def format_summary(summary: dict) -> str:
         + (f"  ({summary['model']['title']})" if summary["model"]["title"] else ""),
         f"powers and heat flows are for the {summary['units']['powers_and_heat_flows_for']}",
         "",
-        f"Hot spot      {hs['temperature']:.2f} °C in {hs['shape']!r} at "
-        f"({hs['x']:.4g}, {hs['y']:.4g}) {unit}",
+        f"Hot spot      {hs['temperature']:.2f}{_pm(hs.get('temperature_error'))} °C in "
+        f"\"{hs['shape']}\" at ({hs['x']:.4g}, {hs['y']:.4g}) {unit}",
         f"Temperature   min {summary['temperature']['min']:.2f} °C, "
-        f"max {summary['temperature']['max']:.2f} °C",
+        f"max {summary['temperature']['max']:.2f}"
+        f"{_pm(summary['temperature'].get('max_error'))} °C",
         "",
-        f"{'shape':<20} {'material':<14} {'min °C':>9} {'mean °C':>9} {'max °C':>9} "
+        f"{'shape':<20} {'material':<16} {'min °C':>9} {'mean °C':>16} {'max °C':>16} "
         f"{'power W':>10}",
     ]
     for name, s in [*summary["shapes"].items(), *summary["groups"].items()]:
         label = s.get("material") or f"({s['kind']})"
-        lines.append(f"{name:<20} {label:<14} {_fmt(s['min']):>9} "
-                     f"{_fmt(s['mean']):>9} {_fmt(s['max']):>9} {s['power_w']:>10.4g}")
+        mean = _fmt(s["mean"]) + _pm(s.get("mean_error"))
+        top = _fmt(s["max"]) + _pm(s.get("max_error"))
+        lines.append(f"{name:<20} {label:<16} {_fmt(s['min']):>9} {mean:>16} {top:>16} "
+                     f"{s['power_w']:>10.4g}")
     if summary["limits"]:
         lines += ["", f"{'limit':<20} {'max °C':>9} {'limit °C':>9} {'margin K':>9}"]
         for name, lim in summary["limits"].items():
             flag = "  EXCEEDED" if lim["exceeded"] else ""
             lines.append(f"{name:<20} {lim['max']:>9.2f} {lim['limit']:>9.2f} "
                          f"{lim['margin']:>9.2f}{flag}")
-    lines += ["", f"{'boundary':<20} {'kind':<21} {'heat out W':>11} {'share':>7} "
+    lines += ["", f"{'boundary':<20} {'kind':<21} {'heat out W':>20} {'share':>7} "
               f"{'mean °C':>9} {'length ' + unit:>11}"]
     total_out = sum(max(b["heat_out_w"], 0.0) for b in summary["boundaries"].values())
     for name, b in summary["boundaries"].items():
         share = f"{100 * b['heat_out_w'] / total_out:.1f}%" if total_out > 0 else "-"
-        lines.append(f"{name:<20} {b['kind']:<21} {b['heat_out_w']:>11.4g} {share:>7} "
+        heat = f"{b['heat_out_w']:.4g}{_pm(b.get('heat_out_error_w'))}"
+        lines.append(f"{name:<20} {b['kind']:<21} {heat:>20} {share:>7} "
                      f"{b['mean_temperature']:>9.2f} {b['length']:>11.4g}")
-    lines.append(f"{'(insulated)':<20} {'':<21} {0:>11} {'':>7} {'':>9} "
+    lines.append(f"{'(insulated)':<20} {'':<21} {0:>20} {'':>7} {'':>9} "
                  f"{summary['insulated_length']:>11.4g}")
     if summary["interfaces"]:
         lines += ["", f"{'interface':<20} {'heat W':>11} {'mean jump K':>12} {'R″ m²K/W':>10}"]
@@ -168,7 +177,9 @@ def format_summary(summary: dict) -> str:
                                                  for s in res["sources"]))
     if summary["probes"]:
         lines += ["", f"{'probe':<20} {'°C':>9}"]
-        lines += [f"{name:<20} {t:>9.2f}" for name, t in summary["probes"].items()]
+        errors = summary.get("probe_errors", {})
+        lines += [f"{name:<20} {t:>9.2f}{_pm(errors.get(name))}"
+                  for name, t in summary["probes"].items()]
     m, sv = summary["mesh"], summary["solver"]
     lines += [
         "",
@@ -180,6 +191,11 @@ def format_summary(summary: dict) -> str:
         f"{sv['relative_residual']:.1e}"
         + (f", {len(sv['history'])} Newton step(s)" if sv["nonlinear"] else ""),
     ]
+    if "errors" in summary:
+        e = summary["errors"]
+        lines.append(f"Error estimate  ± figures: grid convergence over meshes of "
+                     f"{', '.join(str(n) for n in e['nodes'])} nodes; energy-norm indicator "
+                     f"{100 * e['energy_norm']['relative']:.2g} %")
     lines += [f"warning: {w}" for w in summary["warnings"]]
     lines += ["", "CAUTION: " + summary["caution"]]
     return "\n".join(lines)
