@@ -76,7 +76,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     if progress:
         progress("writing", "start")
     try:
-        files = write(result, out)
+        files = write(result, out, show_mesh=args.show_mesh)
     finally:
         if progress:
             progress("writing", "end")
@@ -127,6 +127,12 @@ def cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_verify(args: argparse.Namespace) -> int:
+    from .verify import run_verify_command
+
+    return run_verify_command(args)
+
+
 def cmd_sweep(args: argparse.Namespace) -> int:
     from .sweep import run_sweep_command
 
@@ -142,6 +148,8 @@ def _sweep_arguments(p: argparse.ArgumentParser) -> None:
 COMMANDS: dict[str, tuple[Callable[[argparse.Namespace], int], str]] = {
     "run": (cmd_run, "solve a model and write VTU, summary.json, summary.txt and a PNG map"),
     "check": (cmd_check, "validate and mesh a model without solving; list shapes and boundaries"),
+    "verify": (cmd_verify, "run the bundled verification cases against published solutions; "
+                           "write verify.json and verify.png"),
     "sweep": (cmd_sweep, "solve every combination of parameter values; write sweep.csv and "
                          "sweep.png"),
 }
@@ -156,6 +164,11 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name, (_, help_text) in COMMANDS.items():
         p = sub.add_parser(name, help=help_text, description=help_text)
+        if name == "verify":
+            from .verify import add_verify_arguments
+
+            add_verify_arguments(p)
+            continue
         p.add_argument("model", help="model file (TOML)")
         p.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
                        help="override a parameter of [params] (repeatable)")
@@ -170,6 +183,8 @@ def build_parser() -> argparse.ArgumentParser:
             p.add_argument("--method", choices=sorted(METHODS), default="auto",
                            help="linear solver (default: auto)")
             p.add_argument("--quiet", action="store_true", help="print nothing on success")
+            p.add_argument("--show-mesh", action="store_true",
+                           help="draw the mesh on the PNG temperature map")
             p.add_argument("--no-estimate", action="store_true",
                            help="skip the discretization error estimate (two extra solves)")
             p.add_argument("--strict", action="store_true",

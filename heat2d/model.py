@@ -188,14 +188,19 @@ class Probe:
     x: float
     y: float
     line: int | None = None
+    accuracy: float | None = None
 
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Target edge length (model units; None = automatic) and minimum angle (degrees)."""
+    """Target edge length (model units; None = automatic), minimum angle (degrees), and
+    for adaptive refinement the accuracy wanted on the max temperature (K) and the node
+    budget."""
 
     size: float | None = None
     min_angle: float = 30.0
+    accuracy: float | None = None
+    max_nodes: int = 200_000
 
 
 @dataclass(frozen=True)
@@ -283,6 +288,11 @@ class Model:
         """Depth normal to the section, in metres (for an axisymmetric model: 1, the
         assembly integrates 2πr instead)."""
         return 1.0 if self.axisymmetric else self.depth * self.unit_m
+
+    @property
+    def adaptive(self) -> bool:
+        """True when the model asks for an accuracy (mesh or probe)."""
+        return self.mesh.accuracy is not None or any(p.accuracy for p in self.probes)
 
     @property
     def nonlinear(self) -> bool:
@@ -447,8 +457,8 @@ _ALLOWED = {
     "interface": {"name", "between", "resistance"},
     "boundary": {"name", "on", "temperature", "heat_flux", "h", "ambient", "emissivity",
                  "surroundings"},
-    "mesh": {"size", "min_angle"},
-    "probe": {"name", "at"},
+    "mesh": {"size", "min_angle", "accuracy", "max_nodes"},
+    "probe": {"name", "at", "accuracy"},
 }
 
 
@@ -1060,7 +1070,11 @@ class _Reader:
             if "at" not in spec:
                 raise self.fail(entry, "needs at = [x, y]", self.index.find(*where))
             x, y = self.point(spec["at"], entry, "at", where)
-            out.append(Probe(name, x, y, self.index.find(*where)))
+            accuracy = None
+            if "accuracy" in spec:
+                accuracy = self.number(spec["accuracy"], entry, "accuracy", where, low=0.0,
+                                       low_open=True, what=" K")
+            out.append(Probe(name, x, y, self.index.find(*where), accuracy))
         return out
 
     def read_mesh(self, raw: Any) -> MeshSettings:
@@ -1072,7 +1086,14 @@ class _Reader:
                                low_open=True)
         angle = self.number(raw.get("min_angle", 30.0), "[mesh]", "min_angle", ("mesh", 0),
                             low=0.0, high=MAX_MIN_ANGLE, what=" degrees")
-        return MeshSettings(size=size, min_angle=angle)
+        accuracy = None
+        if "accuracy" in raw:
+            accuracy = self.number(raw["accuracy"], "[mesh]", "accuracy", ("mesh", 0), low=0.0,
+                                   low_open=True, what=" K")
+        budget = self.number(raw.get("max_nodes", 200_000), "[mesh]", "max_nodes", ("mesh", 0),
+                             low=100)
+        return MeshSettings(size=size, min_angle=angle, accuracy=accuracy,
+                            max_nodes=int(budget))
 
 
 def _rect_points(x: float, y: float, w: float, h: float) -> tuple[tuple[float, float], ...]:

@@ -93,6 +93,13 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
                 and np.array_equal(system.fixed, old.system.fixed) and not system.nonlinear)
         solution = stage("solve", solve, system, method=method,
                          factor=old.factor if same else None)
+    elif model.adaptive:
+        from .adapt import adapt
+
+        geometry = stage("geometry", build_geometry, model, refine=refine)
+        result = stage("adapt", adapt, geometry, method=method, resistances=resistances)
+        result.summary["timings_s"].update(timings)
+        return result
     else:
         geometry = stage("geometry", build_geometry, model, refine=refine)
         mesh = stage("mesh", build_mesh, geometry)

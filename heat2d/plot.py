@@ -16,12 +16,14 @@ ZOOM_ASPECT = 3.0
 """Width over height of the zoomed window."""
 
 
-def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None):
+def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None,
+                     show_mesh: bool = False):
     """Draw the temperature map; save it to ``path`` if given and return the figure.
 
     Filled contours with isotherm lines, shape outlines, the hot spot marked and
     labelled, colour bar in °C, axes in the model's length unit, equal aspect.
-    A flat model (a board slice) gets a second panel zoomed on the hot spot.
+    A flat model (a board slice) gets a second panel zoomed on the hot spot;
+    ``show_mesh`` draws the triangles too.
     """
     import matplotlib.tri as mtri
     from matplotlib.figure import Figure
@@ -60,6 +62,8 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         lines = ax.tricontour(tri, T, levels=levels[::4], colors="k", linewidths=0.4,
                               alpha=0.6)
         ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
+        if show_mesh:
+            ax.triplot(tri, color="white", lw=0.15, alpha=0.5)
         _outlines(ax, result)
         ax.plot(hs["x"], hs["y"], marker="x", color="cyan", markersize=9, mew=2)
         if k == len(axes) - 1:

@@ -20,7 +20,7 @@ from .errors import Heat2dError
 from .results import Result
 
 
-def write_vtu(result: Result, path: Path) -> None:
+def write_vtu(result: Result, path: Path, **options) -> None:
     """The mesh with point data ``temperature`` and cell data ``heat_flux``, ``shape_id``,
     ``material_id`` (ids index ``summary["ids"]``)."""
     import meshio
@@ -36,35 +36,37 @@ def write_vtu(result: Result, path: Path) -> None:
     ).write(path, file_format="vtu")
 
 
-def write_json(result: Result, path: Path) -> None:
+def write_json(result: Result, path: Path, **options) -> None:
     """The summary as JSON (see docs/model-format.md for the keys)."""
     path.write_text(json.dumps(result.summary, indent=2, allow_nan=False) + "\n",
                     encoding="utf-8")
 
 
-def write_text(result: Result, path: Path) -> None:
+def write_text(result: Result, path: Path, **options) -> None:
     """The summary as a readable table, with the caution."""
     path.write_text(format_summary(result.summary) + "\n", encoding="utf-8")
 
 
-def write_png(result: Result, path: Path) -> None:
-    """A temperature map: filled contours, isotherms, shape outlines, hot spot, colour bar."""
+def write_png(result: Result, path: Path, *, show_mesh: bool = False, **options) -> None:
+    """A temperature map: filled contours, isotherms, shape outlines, hot spot, colour bar;
+    the triangles too with ``show_mesh``."""
     from .plot import plot_temperature
 
-    plot_temperature(result, path)
+    plot_temperature(result, path, show_mesh=show_mesh)
 
 
-WRITERS: dict[str, tuple[str, Callable[[Result, Path], None]]] = {
+WRITERS: dict[str, tuple[str, Callable[..., None]]] = {
     "vtu": ("{stem}.vtu", write_vtu),
     "json": ("summary.json", write_json),
     "txt": ("summary.txt", write_text),
     "png": ("{stem}.png", write_png),
 }
-"""Output writers by name: file name pattern and function."""
+"""Output writers by name: file name pattern and function ``(result, path, **options)``;
+each ignores the options that are not its own."""
 
 
 def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None = None,
-          stem: str | None = None) -> list[Path]:
+          stem: str | None = None, **options) -> list[Path]:
     """Write the outputs of a run into ``out_dir`` (created if needed), all or nothing.
 
     Parameters
@@ -77,6 +79,8 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
         Names from :data:`WRITERS`; all by default.
     stem
         File stem for the VTU and PNG; the model file's stem by default.
+    **options
+        Passed to every writer (``show_mesh=True`` draws the triangles on the PNG).
 
     Returns
     -------
@@ -100,7 +104,7 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
         for name in names:
             pattern, func = WRITERS[name]
             target = scratch / pattern.format(stem=stem)
-            func(result, target)
+            func(result, target, **options)
             written.append(target)
         final = []
         for f in written:
