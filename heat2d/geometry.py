@@ -169,10 +169,10 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
         axis = exposed & (np.abs(a[:, 0]) <= tol) & (np.abs(b[:, 0]) <= tol)
         exposed &= ~axis
     claims = _claims(model, polys, exposed, a, b, mid, tol)
+    warnings = _exterior_voids(model, polys, claims, a, b, mid, tol)
     interface = _interfaces(model, visible, exposed, a, b, mid, tol)
 
     _check_probes(model, body, tol)
-    warnings = []
     for s, v in zip(model.shapes, visible, strict=True):
         if not s.void and v.area <= 0:
             powered = " and its power is lost" if (s.power or s.power_density) else ""
@@ -182,6 +182,21 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
                     segment_interface=interface, segment_axis=axis, seeds=seeds,
                     holes=holes, visible=tuple(visible), body=body, size=size,
                     tolerance=tol, warnings=tuple(warnings), refine=refine)
+
+
+def _exterior_voids(model: Model, polys: list, claims: np.ndarray, a: np.ndarray,
+                    b: np.ndarray, mid: np.ndarray, tol: float) -> list[str]:
+    """Warn when "exterior" also takes the surface of a void (often a sealed cavity)."""
+    ext = [bc for bc in model.boundaries if bc.selector.kind == "exterior"]
+    if not ext:
+        return []
+    taken = claims == ext[0].index
+    names = [s.name for s in model.shapes
+             if s.void and (taken & _on(polys[s.index].boundary, a, b, mid, tol)).any()]
+    if not names:
+        return []
+    return [f"boundary \"{ext[0].name}\" (exterior) also covers the surface of void(s) "
+            f"{', '.join(names)}; give a sealed cavity its own entry (e.g. heat_flux = 0)"]
 
 
 def _box_cuts(model: Model, body: shapely.Geometry, grid: float) -> np.ndarray:
