@@ -129,7 +129,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
 
     volume = system.layout.volume
     t_tri = T[tri]
-    stats = _shape_stats(mesh, t_tri, volume, system.qdot * volume)
+    stats = _shape_stats(mesh, t_tri, system.layout.source, system.qdot * volume)
 
     # Hot spot: hottest node; its shape is that of the hottest triangle around it.
     node = int(np.argmax(T))
@@ -197,9 +197,14 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
     return Result(solution=solution, heat_flux=flux, summary=summary)
 
 
-def _shape_stats(mesh, t_tri: np.ndarray, volume: np.ndarray, power: np.ndarray
+def _shape_stats(mesh, t_tri: np.ndarray, source: np.ndarray, power: np.ndarray
                  ) -> list[dict[str, Any]]:
-    """Per shape: min, volume-weighted mean (exact for linear elements), max, power, area."""
+    """Per shape: min, volume-weighted mean, max, power, area.
+
+    The mean is exact for linear elements: ∫ T dV = Σ_i T_i ∫ φ_i dV (``source`` holds
+    ∫ φ_i dV, which carries the 2πr weight of an axisymmetric model).
+    """
+    volume = source.sum(axis=1)
     ns = len(mesh.model.shapes)
     shape = mesh.triangle_shape
     s_min = np.full(ns, np.inf)
@@ -207,7 +212,7 @@ def _shape_stats(mesh, t_tri: np.ndarray, volume: np.ndarray, power: np.ndarray
     np.minimum.at(s_min, shape, t_tri.min(axis=1))
     np.maximum.at(s_max, shape, t_tri.max(axis=1))
     s_vol = np.bincount(shape, volume, minlength=ns)
-    s_int = np.bincount(shape, volume * t_tri.mean(axis=1), minlength=ns)
+    s_int = np.bincount(shape, (source * t_tri).sum(axis=1), minlength=ns)
     s_power = np.bincount(shape, power, minlength=ns)
     s_area = np.bincount(shape, mesh.areas, minlength=ns)
     out = []
@@ -351,7 +356,7 @@ def _resistances(solution: Solution) -> dict[str, Any] | None:
         theta = np.zeros(n)
         theta[free] = solution.factor(f[free])
         t_tri = theta[tri]
-        stats = _shape_stats(mesh, t_tri, volume, np.zeros(len(tri)))
+        stats = _shape_stats(mesh, t_tri, system.layout.source, np.zeros(len(tri)))
         for r in rows:
             mean_rise[r.name][src.name] = stats[r.index]["mean"]
             max_rise[r.name][src.name] = stats[r.index]["max"]
