@@ -198,12 +198,12 @@ def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.nda
                       edges: np.ndarray, iface_edges: np.ndarray, iface_id: np.ndarray):
     """Give shape ``b`` of each interface its own copy of the interface nodes.
 
-    A node is split when every triangle around it belongs to the interface's two shapes;
-    where a third shape meets the interface the node stays shared (the contact is then
-    short-circuited over half an edge there).
+    Every node of the interface is split, its ends included; where a third shape meets an
+    end, that shape stays joined to shape ``a``'s copy, so no heat bypasses the contact
+    (the third shape then touches ``b`` through the other nodes of their shared edge
+    only). A node shared by two different interfaces stays whole.
     """
     n = len(points)
-    side_a = np.array([model.shape(i.a).index for i in model.interfaces])
     side_b = np.array([model.shape(i.b).index for i in model.interfaces])
     node_iface = np.full(n, -1)
     node_iface[iface_edges.ravel()] = np.repeat(iface_id, 2)
@@ -212,10 +212,7 @@ def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.nda
     entry_node = tris.ravel()
     entry_shape = np.repeat(shape, 3)
     k = node_iface[entry_node]
-    foreign = (k >= 0) & (entry_shape != side_a[k]) & (entry_shape != side_b[k])
-    blocked = clash.copy()
-    np.logical_or.at(blocked, entry_node, foreign)
-    split = (node_iface >= 0) & ~blocked
+    split = (node_iface >= 0) & ~clash
     new_id = np.full(n, -1)
     new_id[split] = n + np.arange(split.sum())
     # Exposed edges: find the triangle each belongs to before renumbering.

@@ -284,16 +284,18 @@ def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float]
     heat[:nb] += np.bincount(owner[rest], out[rest], minlength=nb + 1)[:nb]
 
     lengths = mesh.edge_lengths
-    t_mean = T[edges].mean(axis=1)
     claimed = owner >= 0
     length = np.bincount(owner[claimed], lengths[claimed], minlength=nb)
-    t_int = np.bincount(owner[claimed], (lengths * t_mean)[claimed], minlength=nb)
+    # Surface-weighted mean temperature: ∫ T dS / ∫ dS, exact for linear T (2πr included).
+    load = system.layout.edge_load
+    surface = np.bincount(owner[claimed], load.sum(axis=1)[claimed], minlength=nb)
+    t_int = np.bincount(owner[claimed], (load * T[edges]).sum(axis=1)[claimed], minlength=nb)
     boundaries = {}
     for bc in model.boundaries:
         i = bc.index
         boundaries[bc.name] = {"kind": bc.label, "on": str(bc.selector),
                                "heat_out_w": float(heat[i]),
-                               "mean_temperature": float(t_int[i] / length[i]),
+                               "mean_temperature": float(t_int[i] / surface[i]),
                                "length": float(length[i])}
     generated = system.qdot_power()
     flux_in = float((system.edge["flux"] * system.layout.edge_load.sum(axis=1)).sum())
