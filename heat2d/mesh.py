@@ -90,15 +90,14 @@ class Mesh:
                 f"{len(self.edges)} exposed edges, shapes: {', '.join(shapes)})")
 
 
-def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
+def build_mesh(geometry: Geometry) -> Mesh:
     """Mesh the graph with minimum angle and per-face size bounds.
 
     Parameters
     ----------
     geometry
-        The graph from :func:`~heat2d.geometry.build_geometry`.
-    refine
-        Divide every target edge length by this factor (for convergence studies).
+        The graph from :func:`~heat2d.geometry.build_geometry` (whose ``refine`` scales
+        every target size and circle chord).
 
     Raises
     ------
@@ -107,7 +106,7 @@ def build_mesh(geometry: Geometry, *, refine: float = 1.0) -> Mesh:
     """
     regions = geometry.seeds.copy()
     regions[:, 2] = np.arange(len(regions))
-    regions[:, 3] = EQUILATERAL_AREA * (regions[:, 3] / refine) ** 2
+    regions[:, 3] = EQUILATERAL_AREA * regions[:, 3] ** 2
     data = {
         "vertices": geometry.vertices,
         "segments": geometry.segments,
