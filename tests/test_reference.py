@@ -388,6 +388,49 @@ def test_slab_with_uniform_generation(faces):
     np.testing.assert_allclose(as_power.temperature, fine.temperature, rtol=1e-12, atol=0)
 
 
+def test_slab_nodal_values_exact_on_a_mesh_uniform_through_the_thickness():
+    # Inc §3.5.1 parabola. On a structured mesh, uniform through the thickness with every
+    # diagonal the same way, the linear-element equations for a field of x alone reduce to
+    # the three-point difference formula with the exact load q̇h², which is exact for a
+    # quadratic: nodal values match to round-off (one order above the elements' own
+    # interpolation). The mesher never makes such a mesh, so it is built here and handed to
+    # the assembly in place of the mesher's (same model, same boundary entries).
+    from dataclasses import replace
+
+    from heat2d.assembly import assemble
+    from heat2d.solver import solve
+
+    face, t_surface = SLAB_FACES["fixed"]
+    model = heat2d.parse(slab_text(face, {"power_density": QDOT}))
+    mesher = build_mesh(build_geometry(model))
+    nx, ny = 16, 3
+    xs = np.linspace(-HALF, HALF, nx + 1)
+    ys = np.linspace(0, SLAB_HEIGHT, ny + 1)
+    gx, gy = np.meshgrid(xs, ys, indexing="ij")
+    points = np.column_stack([gx.ravel(), gy.ravel()])
+    node = np.arange(points.shape[0]).reshape(nx + 1, ny + 1)
+    a, b = node[:-1, :-1].ravel(), node[1:, :-1].ravel()
+    c, d = node[1:, 1:].ravel(), node[:-1, 1:].ravel()
+    triangles = np.vstack([np.column_stack([a, b, c]), np.column_stack([a, c, d])])
+    left = np.column_stack([node[0, :-1], node[0, 1:]])
+    right = np.column_stack([node[-1, :-1], node[-1, 1:]])
+    bottom = np.column_stack([node[:-1, 0], node[1:, 0]])
+    top = np.column_stack([node[:-1, -1], node[1:, -1]])
+    edges = np.vstack([left, right, bottom, top])
+    owner = np.concatenate([np.zeros(ny, int), np.ones(ny, int), -np.ones(2 * nx, int)])
+    empty = np.empty((0, 2), int)
+    mesh = replace(mesher, points=points, triangles=triangles,
+                   triangle_shape=np.zeros(len(triangles), int),
+                   triangle_material=np.zeros(len(triangles), int), edges=edges,
+                   edge_boundary=owner, interface_a=empty, interface_b=empty,
+                   interface_id=np.empty(0, int))
+    T = solve(assemble(mesh), method="direct").temperature
+    dt_max = QDOT * (HALF * 1e-3) ** 2 / (2 * K_SLAB)
+    exact = t_surface + dt_max * (1 - (points[:, 0] / HALF) ** 2)
+    # 1e-12 of ΔT_max: the direct solve's round-off on 68 unknowns.
+    assert np.abs(T - exact).max() < 1e-12 * dt_max
+
+
 # ---------------------------------------------------------------------------------------
 # 4. Radial conduction in a cylinder wall (Inc §3.3.1, Table 3.3; RF #2)
 
