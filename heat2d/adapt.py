@@ -18,7 +18,7 @@ import numpy as np
 
 from .assembly import assemble
 from .errors import ModelError
-from .estimate import annotate, estimate, recovery_indicator
+from .estimate import RATIO, annotate, estimate, recovery_indicator
 from .geometry import Geometry
 from .mesh import build_mesh, refine_mesh
 from .results import Result, compute_results
@@ -81,8 +81,16 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         eta, _, _ = recovery_indicator(solution)
         mesh = refine_mesh(mesh, _area_bounds(mesh, eta))
     final = compute_results(results[-1].solution, resistances=resistances)
-    if len(results) >= 3:
-        annotate(final.summary, estimate(final, results[-3:-1]))
+    others = results[-3:-1]
+    if len(others) < 2:
+        # Too few meshes in the sequence (a tight budget): complete the ladder with
+        # coarser uniform meshes, as a run without adaptivity does.
+        from .pipeline import run
+
+        for f in (1 / RATIO, 1 / RATIO**2)[: 2 - len(others)]:
+            others.append(run(model, method=method, refine=geometry.refine * f,
+                              resistances=False, estimate=False, adaptive=False))
+    annotate(final.summary, estimate(final, others))
     final.summary["adaptive"] = {"targets": goals, "reached": reached, "steps": steps}
     if not reached:
         final.summary["warnings"].append(

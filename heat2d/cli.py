@@ -102,16 +102,18 @@ def cmd_check(args: argparse.Namespace) -> int:
     areas = geometry.visible_area
     claimed = geometry.claimed_length()
     print(f"{model.source}: model is valid" + (f" ({model.title})" if model.title else ""))
-    print(f"length unit {unit}, depth {model.depth:g} {unit}")
+    print(f"length unit {unit}, " + ("axisymmetric (full revolution)" if model.axisymmetric
+                                      else f"depth {model.depth:g} {unit}"))
     print(f"\n{'shape':<20} {'material':<14} {'visible area ' + unit + '²':>18} {'power':>12}")
     for s, a in zip(model.shapes, areas, strict=True):
         power = (f"{s.power:g} W" if s.power is not None else
                  f"{s.power_density:g} W/m³" if s.power_density is not None else "")
         print(f"{s.name:<20} {'(void)' if s.void else s.material:<14} {a:>18.6g} {power:>12}")
-    print(f"\n{'boundary':<20} {'kind':<12} {'on':<24} {'length ' + unit:>12}")
+    print(f"\n{'boundary':<20} {'kind':<21} {'on':<24} {'length ' + unit:>12}")
     for bc in model.boundaries:
-        print(f"{bc.name:<20} {bc.kind:<12} {str(bc.selector):<24} {claimed[bc.index]:>12.6g}")
-    print(f"{'(insulated)':<20} {'':<12} {'':<24} {geometry.insulated_length():>12.6g}")
+        print(f"{bc.name:<20} {bc.label:<21} {str(bc.selector):<24} "
+              f"{claimed[bc.index]:>12.6g}")
+    print(f"{'(insulated)':<20} {'':<21} {'':<24} {geometry.insulated_length():>12.6g}")
     if model.interfaces:
         print(f"\n{'interface':<20} {'between':<30} {'R″ m²K/W':>10}")
         for itf in model.interfaces:

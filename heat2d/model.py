@@ -876,6 +876,8 @@ class _Reader:
                 f"{entry} layer #{j + 1}"
             self.check_keys(layer, "layer", lentry, where)
             lname = self.string(lname, lentry, "name", where)
+            if "." in lname or "[" in lname:
+                raise self.fail(lentry, "a layer name may not hold . or [", line)
             if lname in SIDES:
                 raise self.fail(lentry, f"a layer cannot be called left, right, top or bottom "
                                 f"({name}.{lname} selects a side of the stack); try "
@@ -963,7 +965,8 @@ class _Reader:
                 values["emissivity"] = self.number(spec["emissivity"], entry, "emissivity",
                                                    where, low=0.0, low_open=True, high=1.0)
                 if "surroundings" not in spec and "ambient" not in spec:
-                    raise self.fail(entry, "radiation needs surroundings (°C) or an ambient",
+                    raise self.fail(entry, "radiation needs surroundings (°C), or h with an "
+                                    "ambient that it then shares",
                                     self.index.find(*where, "emissivity"))
                 values["surroundings"] = self.number(
                     spec.get("surroundings", spec.get("ambient")), entry,

@@ -40,7 +40,7 @@ def geometry_key(model: Model, refine: float = 1.0) -> tuple:
 
 def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         progress: Progress | None = None, reuse: Result | None = None,
-        resistances: bool = True, estimate: bool = True) -> Result:
+        resistances: bool = True, estimate: bool = True, adaptive: bool = True) -> Result:
     """Solve a model end to end.
 
     Parameters
@@ -61,6 +61,8 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
     estimate
         Estimate the discretization error of every reported figure by solving on a
         refined and a coarser mesh (see :mod:`heat2d.estimate`).
+    adaptive
+        Refine adaptively when the model asks for an accuracy (see :mod:`heat2d.adapt`).
 
     Returns
     -------
@@ -93,7 +95,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
                 and np.array_equal(system.fixed, old.system.fixed) and not system.nonlinear)
         solution = stage("solve", solve, system, method=method,
                          factor=old.factor if same else None)
-    elif model.adaptive:
+    elif model.adaptive and adaptive:
         from .adapt import adapt
 
         geometry = stage("geometry", build_geometry, model, refine=refine)

@@ -94,8 +94,13 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         state = (f"EXCEEDED by {-lim['margin']:.1f} K" if lim["exceeded"]
                  else f"margin {lim['margin']:.1f} K")
         limits.append(f"{name} {lim['max']:.1f} °C vs limit {lim['limit']:g} °C ({state})")
+    shown = sorted(summary.get("limits", {}).items(), key=lambda kv: kv[1]["margin"])
     if limits:
-        lines.append("; ".join(limits))
+        # The tightest three, one per line.
+        order = [list(summary["limits"]).index(name) for name, _ in shown[:3]]
+        lines += [limits[i] for i in order]
+        if len(limits) > 3:
+            lines.append(f"(+{len(limits) - 3} more limits in summary.txt)")
     axes[0].set_title("\n".join(lines), fontsize=10,
                       color="firebrick" if any(v["exceeded"] for v in summary["limits"].values())
                       else "black")

@@ -172,7 +172,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                      "shape": model.shapes[mesh.triangle_shape[hot_tri]].name},
         "shapes": shapes,
         "groups": {g.name: {"kind": g.kind, "members": list(g.members),
-                            **_group_stats([shapes[m] for m in g.members])}
+                            **_group_stats([shapes[m] for m in g.members if m in shapes])}
                    for g in model.groups},
         "boundaries": boundaries,
         "interfaces": _interfaces(solution),

@@ -909,7 +909,8 @@ def plot_sweep(result: SweepResult, path: str | Path | None = None, *, fig=None)
         lines.setdefault(() if result.zipped else tuple(r.get(n) for n in others), []).append(r)
     for key, members in lines.items():
         members.sort(key=lambda r: r[x_name])
-        label = ", ".join(f"{n} = {_show(v)}" for n, v in zip_(others, key, strict=False)) or None
+        label = (None if not key else _show(key[0]) if len(key) == 1 else
+                 ", ".join(f"{n} = {_show(v)}" for n, v in zip_(others, key, strict=True)))
         ax.plot([r[x_name] for r in members], [r["max_temperature_c"] for r in members],
                 marker="o", label=label)
     ax.set_xlabel(x_name + (f" (paired with {', '.join(others)})"
