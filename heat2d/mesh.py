@@ -243,3 +243,55 @@ def _check_outline(tris: np.ndarray, edges: np.ndarray, n: int, source: str) -> 
     if len(outline) != len(given) or not np.array_equal(outline, given):
         raise MeshError(f"mesh outline ({len(outline)} edges) does not match the exposed "
                         f"segments ({len(given)} edges)", file=source)
+
+
+def red_refine(mesh: Mesh) -> Mesh:
+    """Split every triangle into four at its edge midpoints (a nested refinement).
+
+    Every node of ``mesh`` stays a node, so nodal values compare directly; shapes,
+    materials, exposed edges and interface pairs are carried over. Circles keep the
+    polygon of ``mesh``. The result cannot be refined further with :func:`refine_mesh`.
+    """
+    n = len(mesh.points)
+    tri = mesh.triangles
+    local = np.array([[0, 1], [1, 2], [2, 0]])
+    pairs = np.sort(tri[:, local].reshape(-1, 2), axis=1)
+    keys, inverse = np.unique(pairs[:, 0] * n + pairs[:, 1], return_inverse=True)
+    ends = np.column_stack([keys // n, keys % n])
+    mid = n + inverse.reshape(-1, 3)                              # midpoint of edge 01, 12, 20
+    points = np.vstack([mesh.points, 0.5 * (mesh.points[ends[:, 0]] + mesh.points[ends[:, 1]])])
+    a, b, c = tri.T
+    ab, bc, ca = mid.T
+    children = np.concatenate([np.column_stack(t) for t in
+                               ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))])
+
+    def midpoint(edges: np.ndarray) -> np.ndarray:
+        e = np.sort(edges, axis=1)
+        return n + np.searchsorted(keys, e[:, 0] * n + e[:, 1])
+
+    def split(edges: np.ndarray) -> np.ndarray:
+        m = midpoint(edges)
+        return np.concatenate([np.column_stack([edges[:, 0], m]),
+                               np.column_stack([m, edges[:, 1]])])
+
+    return Mesh(geometry=mesh.geometry, points=points, triangles=children,
+                triangle_shape=np.tile(mesh.triangle_shape, 4),
+                triangle_material=np.tile(mesh.triangle_material, 4),
+                edges=split(mesh.edges), edge_boundary=np.tile(mesh.edge_boundary, 2),
+                interface_a=split(mesh.interface_a), interface_b=split(mesh.interface_b),
+                interface_id=np.tile(mesh.interface_id, 2), axis_length=mesh.axis_length)
+
+
+def prolong(values: np.ndarray, coarse: Mesh, fine: Mesh) -> np.ndarray:
+    """Nodal values of ``coarse`` carried onto its :func:`red_refine` ``fine`` mesh (linear:
+    each midpoint gets the mean of its edge's ends)."""
+    n = len(coarse.points)
+    out = np.empty(len(fine.points))
+    out[:n] = values
+    tri = coarse.triangles
+    child = fine.triangles[: len(tri)]          # (a, ab, ca) children, in the parents' order
+    out[child[:, 1]] = 0.5 * (values[tri[:, 0]] + values[tri[:, 1]])
+    out[child[:, 2]] = 0.5 * (values[tri[:, 2]] + values[tri[:, 0]])
+    second = fine.triangles[len(tri): 2 * len(tri)]   # (ab, b, bc)
+    out[second[:, 2]] = 0.5 * (values[tri[:, 1]] + values[tri[:, 2]])
+    return out

@@ -117,11 +117,21 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
 
 
 def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
-    from .estimate import annotate, estimate, ladder
+    from .estimate import REFINED_LIMIT, annotate, estimate, ladder, nested
+    from .mesh import prolong, red_refine
 
-    others = [run(model, method=method, refine=refine * f, resistances=False, estimate=False)
-              for f in ladder(len(result.mesh.points))]
+    if len(result.mesh.points) <= REFINED_LIMIT:
+        mesh = red_refine(result.mesh)
+        guess = prolong(result.solution.temperature, result.mesh, mesh)
+        fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
+        annotate(result.summary, nested(result, compute_results(fine, resistances=False)))
+        return
+    others = [run(model, method=method, refine=refine * f, resistances=False, estimate=False,
+                  adaptive=False) for f in ladder(len(result.mesh.points))]
     annotate(result.summary, estimate(result, others))
+    result.summary["warnings"].append(
+        "error estimate from coarser, non-nested meshes (the run is too large to refine "
+        "cheaply): it may understate the error; check with --refine")
 
 
 def rebind(mesh, model: Model):

@@ -25,7 +25,7 @@ if TYPE_CHECKING:
 
     from .assembly import System
 
-AUTO_DIRECT_LIMIT = 60_000
+AUTO_DIRECT_LIMIT = 150_000
 """``auto`` factorizes below this many unknowns and uses multigrid CG above
 (measured on a 2-core machine: see benchmarks/solver_threshold.py)."""
 ITERATIVE_TOL = 1e-10
@@ -140,7 +140,8 @@ METHODS = ("auto", "direct", "multigrid")
 
 def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
           max_iterations: int = MAX_NONLINEAR_ITERATIONS,
-          factor: Callable[[np.ndarray], np.ndarray] | None = None) -> Solution:
+          factor: Callable[[np.ndarray], np.ndarray] | None = None,
+          initial: np.ndarray | None = None, newton_steps: int | None = None) -> Solution:
     """Solve K T = F with the fixed temperatures eliminated (Newton for nonlinear models).
 
     Parameters
@@ -158,6 +159,10 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     factor
         The factor of an earlier solve whose reduced matrix equals this one (a variant
         with other sources or boundary temperatures); it is reused instead of refactoring.
+    initial, newton_steps
+        Nonlinear models: start Newton from ``initial`` (nodal °C) instead of the linear
+        solution, and take exactly ``newton_steps`` steps (a check solve from a good
+        guess: each step squares the error).
 
     Raises
     ------
@@ -183,6 +188,15 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     chosen = method if method != "auto" else (
         "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
     notes: list[str] = []
+    if initial is not None and system.nonlinear:
+        T[free] = initial[free]
+        R, J = system.residual_and_jacobian(T)
+        factor = Factor(chosen, J[free][:, free].tocsr())
+        T, residual, history, iterations = _newton(
+            system, T, free, factor, tol, newton_steps or max_iterations,
+            fixed_steps=newton_steps is not None)
+        return Solution(system, T, chosen, iterations, residual, time.perf_counter() - start,
+                        (), tuple(history), factor, free)
     if factor is not None:
         chosen = factor.method
         x = factor(rhs)
@@ -223,7 +237,8 @@ def _relative(A: sp.csr_matrix, x: np.ndarray, b: np.ndarray) -> float:
 
 
 def _newton(system: System, T: np.ndarray, free: np.ndarray, factor: Factor, tol: float,
-            max_iterations: int) -> tuple[np.ndarray, float, list, int]:
+            max_iterations: int, *, fixed_steps: bool = False
+            ) -> tuple[np.ndarray, float, list, int]:
     """Newton on R(T) = K(T) T − F(T) = 0 at the free nodes, with step halving."""
     scale = max(np.abs(system.F).sum(), np.abs(system.K @ T).sum(), 1e-300)
     history = []
@@ -249,7 +264,7 @@ def _newton(system: System, T: np.ndarray, free: np.ndarray, factor: Factor, tol
         history.append((it, change, float(norm)))
         if not np.all(np.isfinite(T)):
             break
-        if change < tol:
+        if change < tol or (fixed_steps and it == max_iterations):
             return T, float(norm), history, total
     last = history[-1] if history else (0, np.nan, np.nan)
     raise SolveError(f"nonlinear solve did not converge in {max_iterations} iterations: last "

@@ -383,12 +383,10 @@ class _Task:
 
 
 class _Reuse:
-    """The last results of one worker thread (the run's and, for the error estimate, each
-    ladder mesh's), offered to the next variant as ``reuse``."""
+    """The last result of one worker thread, offered to the next variant as ``reuse``."""
 
     def __init__(self) -> None:
         self.last = None
-        self.rungs: dict[float, Any] = {}
 
 
 _WORKER_STATE: dict[int, _Reuse] = {}
@@ -431,29 +429,14 @@ def _compute(task: _Task, state: _Reuse) -> tuple[dict[str, Any], Any]:
 def _solve(task: _Task, state: _Reuse):
     """:func:`heat2d.pipeline.run` with the worker's last result as ``reuse``.
 
-    An adaptive model is never given ``reuse`` (its mesh follows its own solution). The
-    error estimate is made as ``run(..., estimate=True)`` makes it, but each mesh of
-    the ladder also reuses the same mesh of the variant before.
+    An adaptive model is never given ``reuse``: its mesh follows its own solution.
     """
     from .pipeline import run
 
-    model = task.model
-    adaptive = model.adaptive
-    result = run(model, refine=task.refine, method=task.method,
-                 reuse=None if adaptive else state.last, estimate=False)
+    adaptive = task.model.adaptive
+    result = run(task.model, refine=task.refine, method=task.method,
+                 reuse=None if adaptive else state.last, estimate=task.estimate)
     state.last = None if adaptive else result
-    if task.estimate and not adaptive:
-        from .estimate import annotate, estimate, ladder
-
-        start = time.perf_counter()
-        others = []
-        for factor in ladder(len(result.mesh.points)):
-            other = run(model, method=task.method, refine=task.refine * factor,
-                        resistances=False, estimate=False, reuse=state.rungs.get(factor))
-            state.rungs[factor] = other
-            others.append(other)
-        annotate(result.summary, estimate(result, others))
-        result.summary["timings_s"]["estimate"] = time.perf_counter() - start
     return result
 
 
@@ -526,8 +509,8 @@ def sweep(model: Model, vary: Mapping[str, Sequence[float | str] | str], *,
     refine, method
         As for :func:`heat2d.solve`.
     estimate
-        Estimate each variant's discretization error as ``heat2d run`` does (two extra
-        meshes per variant, also reused across variants); adds the column
+        Estimate each variant's discretization error as ``heat2d run`` does (extra
+        solves on other meshes, which are not reused across variants); adds the column
         ``max_temperature_error_k``. Off by default: check the mesh on one variant with
         ``heat2d run`` and sweep without it.
     png
@@ -961,7 +944,7 @@ def add_sweep_arguments(parser: argparse.ArgumentParser) -> None:
                         help="linear solver (default: auto)")
     parser.add_argument("--estimate", action="store_true",
                         help="estimate each variant's discretization error, as heat2d run "
-                             "does (two extra meshes per variant)")
+                             "does (extra solves per variant)")
     parser.add_argument("--png", action="store_true",
                         help="also write each variant's temperature map (seconds each)")
     parser.add_argument("--force", action="store_true",
