@@ -23,16 +23,44 @@ KELVIN = 273.15
 
 
 class Pattern:
-    """A CSR sparsity pattern and, for each COO entry given, its slot in the data array."""
+    """A CSR sparsity pattern and, for each element entry, its slot in the data array.
 
-    def __init__(self, n: int, rows: np.ndarray, cols: np.ndarray) -> None:
+    Built from the mesh edges (3 per triangle) rather than from all 9 entries per
+    triangle: the pattern is the diagonal, both directions of every edge, and any extra
+    couplings (interfaces).
+    """
+
+    def __init__(self, n: int, triangles: np.ndarray, extra_rows: np.ndarray,
+                 extra_cols: np.ndarray) -> None:
         self.n = n
-        keys = rows.astype(np.int64) * n + cols
-        unique, self.slot = np.unique(keys, return_inverse=True)
-        self.slot = self.slot.ravel()
-        self.indices = (unique % n).astype(np.int32)
-        self.indptr = np.searchsorted(unique // n, np.arange(n + 1)).astype(np.int32)
-        self.keys = unique
+        local = np.array([[0, 1], [1, 2], [2, 0]])
+        pairs = triangles[:, local]                                  # (m, 3, 2)
+        lo, hi = pairs.min(axis=2), pairs.max(axis=2)
+        edge_keys, edge_of = np.unique((lo.astype(np.int64) * n + hi).ravel(),
+                                       return_inverse=True)
+        edge_of = edge_of.reshape(-1, 3)
+        elo, ehi = edge_keys // n, edge_keys % n
+        nodes = np.arange(n, dtype=np.int64)
+        rows = np.concatenate([elo, ehi, nodes, extra_rows.astype(np.int64)])
+        cols = np.concatenate([ehi, elo, nodes, extra_cols.astype(np.int64)])
+        self.keys, where = np.unique(rows * n + cols, return_inverse=True)
+        where = where.ravel()
+        ne = len(edge_keys)
+        down, up, diag = where[:ne], where[ne:2 * ne], where[2 * ne:2 * ne + n]
+        self.extra_slots = where[2 * ne + n:]
+        self.indices = (self.keys % n).astype(np.int32)
+        self.indptr = np.searchsorted(self.keys // n, np.arange(n + 1)).astype(np.int32)
+        # Element entry (i, j) of each triangle, row-major: the diagonal slot of node i,
+        # or the slot of edge {i, j} in the direction row i → column j.
+        slots = np.empty((len(triangles), 3, 3), dtype=np.int64)
+        for i in range(3):
+            slots[:, i, i] = diag[triangles[:, i]]
+        for k, (i, j) in enumerate(local):
+            forward = triangles[:, i] < triangles[:, j]
+            e = edge_of[:, k]
+            slots[:, i, j] = np.where(forward, down[e], up[e])
+            slots[:, j, i] = np.where(forward, up[e], down[e])
+        self.slot = slots.ravel()
 
     def slots(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """Slots of entries that are already in the pattern."""
@@ -96,15 +124,12 @@ def build_layout(mesh: Mesh) -> Layout:
     ia, ib = mesh.interface_a, mesh.interface_b
     coupling_rows = np.concatenate([_block_rows(ia, ib), _block_rows(ib, ia)])
     coupling_cols = np.concatenate([_block_cols(ia, ib), _block_cols(ib, ia)])
-    rows = np.concatenate([np.repeat(tri, 3, axis=1).ravel(), coupling_rows])
-    cols = np.concatenate([np.tile(tri, (1, 3)).ravel(), coupling_cols])
-    pattern = Pattern(n, rows, cols)
-    m9 = 9 * len(tri)
+    pattern = Pattern(n, tri, coupling_rows, coupling_cols)
     edges = mesh.edges
     blocks = [(ia, ia), (ia, ib), (ib, ia), (ib, ib)]
     return Layout(kx_unit=kx_unit, ky_unit=ky_unit, source=source, volume=source.sum(axis=1),
                   edge_load=edge_load, edge_mass=edge_mass, iface_mass=iface_mass,
-                  pattern=pattern, tri_slots=pattern.slot[:m9],
+                  pattern=pattern, tri_slots=pattern.slot,
                   edge_slots=pattern.slots(_block_rows(edges, edges), _block_cols(edges, edges)),
                   iface_slots=pattern.slots(
                       np.concatenate([_block_rows(p, q) for p, q in blocks]),

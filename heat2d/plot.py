@@ -44,7 +44,7 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
                      layout="constrained")
     axes = fig.subplots(2 if zoom else 1, 1, squeeze=False,
                         height_ratios=[full_h, zoom_h] if zoom else None)[:, 0]
-    tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)
+    triangulations = [mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)]
     unit = model.length_unit
     ranges = [(float(T.min()), float(T.max()))]
     if zoom:
@@ -53,7 +53,12 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         p = mesh.points
         near = (p[:, 0] >= wx0) & (p[:, 0] <= wx1) & (p[:, 1] >= wy0) & (p[:, 1] <= wy1)
         ranges.append((float(T[near].min()), float(T[near].max())))
+        # The zoomed panel contours only the triangles that reach into its window.
+        keep = _overlaps(mesh, window)
+        triangulations.append(mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1],
+                                                 mesh.triangles[keep]))
     for k, ax in enumerate(axes):
+        tri = triangulations[k]
         lo, hi = ranges[k]
         levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
         filled = ax.tricontourf(tri, T, levels=levels, cmap="inferno", extend="both")
@@ -69,7 +74,9 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         if k == len(axes) - 1:
             upper = hs["y"] > 0.5 * (y0 + y1)
             right = hs["x"] > 0.5 * (x0 + x1) if not zoom else False
-            ax.annotate(f"hot spot {hs['temperature']:.1f} °C ({hs['shape']})",
+            err = hs.get("temperature_error")
+            pm = f" ± {err:.2g}" if err is not None else ""
+            ax.annotate(f"hot spot {hs['temperature']:.1f}{pm} °C ({hs['shape']})",
                         (hs["x"], hs["y"]), xytext=(-10 if right else 10, -12 if upper else 12),
                         textcoords="offset points", color="white", fontsize=9,
                         ha="right" if right else "left", va="top" if upper else "bottom",
@@ -109,6 +116,14 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     if path is not None:
         fig.savefig(path, dpi=110)
     return fig
+
+
+def _overlaps(mesh, window: tuple[float, float, float, float]) -> np.ndarray:
+    """Triangles whose bounding box meets the window (large ones with no node inside)."""
+    wx0, wx1, wy0, wy1 = window
+    p = mesh.points[mesh.triangles]
+    lo, hi = p.min(axis=1), p.max(axis=1)
+    return (lo[:, 0] <= wx1) & (hi[:, 0] >= wx0) & (lo[:, 1] <= wy1) & (hi[:, 1] >= wy0)
 
 
 def _zoom_window(result: Result, shape: str) -> tuple[float, float, float, float]:
