@@ -61,10 +61,19 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
         tri = triangulations[k]
         lo, hi = ranges[k]
         levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
-        filled = ax.tricontourf(tri, T, levels=levels, cmap="inferno", extend="both")
+        if len(tri.triangles) > RASTER_ABOVE and not show_mesh:
+            # Large meshes: contour a pixel grid sampled from the linear field (exact at
+            # the picture's resolution, several times faster than contouring every triangle).
+            gx, gy, grid = _raster(mesh.points, tri.triangles, T, ax_extent(k, window, mesh))
+            contour, contour_lines = ax.contourf, ax.contour
+            args = (gx, gy, grid)
+        else:
+            contour, contour_lines = ax.tricontourf, ax.tricontour
+            args = (tri, T)
+        filled = contour(*args, levels=levels, cmap="inferno", extend="both")
         bar = fig.colorbar(filled, ax=ax, shrink=0.95, format="%.1f", pad=0.01)
         bar.set_label("temperature (°C)")
-        lines = ax.tricontour(tri, T, levels=levels[::4], colors="k", linewidths=0.4,
+        lines = contour_lines(*args, levels=levels[::4], colors="k", linewidths=0.4,
                               alpha=0.6)
         ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
         if show_mesh:
@@ -116,6 +125,58 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     if path is not None:
         fig.savefig(path, dpi=110)
     return fig
+
+
+RASTER_ABOVE = 100_000
+"""Panels with more triangles are drawn from a pixel grid."""
+RASTER_PIXELS = 1000
+
+
+def ax_extent(k: int, window, mesh) -> tuple[float, float, float, float]:
+    if k == 1:
+        return window
+    (x0, y0), (x1, y1) = mesh.points.min(axis=0), mesh.points.max(axis=0)
+    return (x0, x1, y0, y1)
+
+
+def _raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
+            extent: tuple[float, float, float, float]):
+    """The linear field sampled at pixel centres (masked outside the mesh).
+
+    Vectorized over (triangle, pixel) candidates from each triangle's bounding box.
+    """
+    x0, x1, y0, y1 = extent
+    nx = RASTER_PIXELS
+    ny = int(np.clip(nx * (y1 - y0) / max(x1 - x0, 1e-300), 50, RASTER_PIXELS))
+    dx, dy = (x1 - x0) / nx, (y1 - y0) / ny
+    p = points[triangles]
+    ix0 = np.clip(np.floor((p[:, :, 0].min(axis=1) - x0) / dx - 0.5).astype(int), 0, nx - 1)
+    ix1 = np.clip(np.ceil((p[:, :, 0].max(axis=1) - x0) / dx - 0.5).astype(int), 0, nx - 1)
+    iy0 = np.clip(np.floor((p[:, :, 1].min(axis=1) - y0) / dy - 0.5).astype(int), 0, ny - 1)
+    iy1 = np.clip(np.ceil((p[:, :, 1].max(axis=1) - y0) / dy - 0.5).astype(int), 0, ny - 1)
+    # Per triangle: barycentric l1, l2 and T as affine functions a + b·x + c·y.
+    (ax, ay), (bx, by), (cx_, cy_) = (p[:, i].T for i in range(3))
+    det = (bx - ax) * (cy_ - ay) - (by - ay) * (cx_ - ax)
+    l1 = np.stack([(-ax * (cy_ - ay) + ay * (cx_ - ax)), cy_ - ay, -(cx_ - ax)]) / det
+    l2 = np.stack([(-(bx - ax) * ay + (by - ay) * ax), -(by - ay), bx - ax]) / det
+    t0, t1, t2 = T[triangles].T
+    tv = t0 * np.stack([1 - l1[0] - l2[0], -l1[1] - l2[1], -l1[2] - l2[2]]) \
+        + t1 * l1 + t2 * l2
+    w, h = ix1 - ix0 + 1, iy1 - iy0 + 1
+    count = w * h
+    t = np.repeat(np.arange(len(triangles)), count)
+    local = np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
+    px = ix0[t] + local % w[t]
+    py = iy0[t] + local // w[t]
+    x, y = x0 + (px + 0.5) * dx, y0 + (py + 0.5) * dy
+    u = l1[0, t] + l1[1, t] * x + l1[2, t] * y
+    v = l2[0, t] + l2[1, t] * x + l2[2, t] * y
+    inside = (u >= -1e-9) & (v >= -1e-9) & (u + v <= 1 + 1e-9)
+    t, x, y = t[inside], x[inside], y[inside]
+    grid = np.full((ny, nx), np.nan)
+    grid[py[inside], px[inside]] = tv[0, t] + tv[1, t] * x + tv[2, t] * y
+    gx, gy = np.meshgrid(x0 + (np.arange(nx) + 0.5) * dx, y0 + (np.arange(ny) + 0.5) * dy)
+    return gx, gy, np.ma.masked_invalid(grid)
 
 
 def _overlaps(mesh, window: tuple[float, float, float, float]) -> np.ndarray:
