@@ -77,7 +77,10 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         if reached or len(mesh.points) * GROWTH > budget:
             break
         eta, _, _ = recovery_indicator(solution)
-        mesh = refine_mesh(mesh, _area_bounds(mesh, eta))
+        bounds = _area_bounds(mesh, eta)
+        if not (bounds > 0).any():
+            break                               # nothing left that may be refined
+        mesh = refine_mesh(mesh, bounds)
     final = compute_results(solution, resistances=resistances)
     annotate(final.summary, errors)
     final.summary["adaptive"] = {"targets": goals, "reached": reached, "steps": steps}
@@ -88,8 +91,16 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
     return final
 
 
+MIN_SIZE_FRACTION = 1e-3
+"""Triangles are not refined below this fraction of the model's target size: where the
+data jump (two held temperatures meet) the indicator never falls, and refinement must
+stop somewhere."""
+
+
 def _area_bounds(mesh, eta: np.ndarray) -> np.ndarray:
     """Area bounds for the triangles that carry MARK_SHARE of Σ η² (largest first)."""
+    floor = (MIN_SIZE_FRACTION * mesh.geometry.size) ** 2
+    eta = np.where(mesh.areas > 4 * floor, eta, 0.0)
     order = np.argsort(-eta)
     share = np.cumsum(eta[order] ** 2) / max((eta**2).sum(), 1e-300)
     count = int(np.searchsorted(share, MARK_SHARE)) + 1

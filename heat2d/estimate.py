@@ -118,6 +118,8 @@ def peak_sampling(solution) -> float:
     """
     mesh = solution.mesh
     node = int(np.argmax(solution.temperature))
+    if node in set(solution.system.fixed.tolist()):
+        return 0.0                      # the hottest point is held: it has no error
     around = np.flatnonzero((mesh.triangles == node).any(axis=1))
     p = mesh.points[mesh.triangles[around]] * mesh.model.unit_m
     h = np.max([np.hypot(*(p[:, i] - p[:, (i + 1) % 3]).T) for i in range(3)], axis=0)

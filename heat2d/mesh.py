@@ -249,8 +249,9 @@ def red_refine(mesh: Mesh) -> Mesh:
     """Split every triangle into four at its edge midpoints (a nested refinement).
 
     Every node of ``mesh`` stays a node, so nodal values compare directly; shapes,
-    materials, exposed edges and interface pairs are carried over. Circles keep the
-    polygon of ``mesh``. The result cannot be refined further with :func:`refine_mesh`.
+    materials, exposed edges and interface pairs are carried over. Midpoints of circle
+    chords move onto the circle, so the refined mesh also halves the outline's own error.
+    The result cannot be refined further with :func:`refine_mesh`.
     """
     n = len(mesh.points)
     tri = mesh.triangles
@@ -260,6 +261,7 @@ def red_refine(mesh: Mesh) -> Mesh:
     ends = np.column_stack([keys // n, keys % n])
     mid = n + inverse.reshape(-1, 3)                              # midpoint of edge 01, 12, 20
     points = np.vstack([mesh.points, 0.5 * (mesh.points[ends[:, 0]] + mesh.points[ends[:, 1]])])
+    _onto_circles(mesh, points, ends, n)
     a, b, c = tri.T
     ab, bc, ca = mid.T
     children = np.concatenate([np.column_stack(t) for t in
@@ -295,3 +297,27 @@ def prolong(values: np.ndarray, coarse: Mesh, fine: Mesh) -> np.ndarray:
     second = fine.triangles[len(tri): 2 * len(tri)]   # (ab, b, bc)
     out[second[:, 2]] = 0.5 * (values[tri[:, 1]] + values[tri[:, 2]])
     return out
+
+
+def _onto_circles(mesh: Mesh, points: np.ndarray, ends: np.ndarray, n: int) -> None:
+    """Move the midpoints of circle chords (both ends on the circle, at most one outline
+    side apart) radially onto the circle, in place."""
+    geometry = mesh.geometry
+    tol = geometry.tolerance
+    for shape in geometry.model.shapes:
+        if shape.circle is None:
+            continue
+        cx, cy, r = shape.circle
+        local = shape.mesh_size / geometry.refine if shape.mesh_size else geometry.size
+        sides = max(16, int(np.ceil(2 * np.pi * r / local)))
+        a, b = mesh.points[ends[:, 0]], mesh.points[ends[:, 1]]
+        ra = np.hypot(a[:, 0] - cx, a[:, 1] - cy)
+        rb = np.hypot(b[:, 0] - cx, b[:, 1] - cy)
+        angle = np.abs(np.angle(((a[:, 0] - cx) + 1j * (a[:, 1] - cy))
+                                * np.conj((b[:, 0] - cx) + 1j * (b[:, 1] - cy))))
+        chord = (np.abs(ra - r) <= tol) & (np.abs(rb - r) <= tol) \
+            & (angle <= 2 * np.pi / sides * (1 + 1e-6))
+        m = points[n + np.flatnonzero(chord)]
+        d = np.hypot(m[:, 0] - cx, m[:, 1] - cy)
+        points[n + np.flatnonzero(chord)] = np.column_stack(
+            [cx + (m[:, 0] - cx) * r / d, cy + (m[:, 1] - cy) * r / d])

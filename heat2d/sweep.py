@@ -666,28 +666,15 @@ def _columns(varied: list[str], rows: list[dict[str, Any]]) -> list[str]:
 
 
 def _run_here(tasks: list[_Task], finish) -> None:
-    """In this process, writing each variant's files while the next one solves."""
-    from concurrent.futures import ThreadPoolExecutor
+    """In this process, one variant after the other.
 
+    (Writing a variant's files in a thread while the next one solves was tried: the
+    two contend for the interpreter lock and the sweep got no faster.)
+    """
     state = _Reuse()
-    pending = None
-    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="heat2d-write") as writer:
-        for task in tasks:
-            outcome, result = _compute(task, state)
-            if pending is not None:
-                finish(pending.result())
-            pending = (writer.submit(_save, task, outcome, result) if result is not None
-                       else _Done(outcome))
-        if pending is not None:
-            finish(pending.result())
-
-
-class _Done:
-    def __init__(self, value: Any) -> None:
-        self.value = value
-
-    def result(self) -> Any:
-        return self.value
+    for task in tasks:
+        outcome, result = _compute(task, state)
+        finish(_save(task, outcome, result) if result is not None else outcome)
 
 
 def _run_in_processes(tasks: list[_Task], jobs: int, finish) -> None:
