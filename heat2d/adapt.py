@@ -19,8 +19,8 @@ from .assembly import assemble
 from .errors import ModelError
 from .estimate import annotate, nested, recovery_indicator
 from .geometry import Geometry
-from .mesh import build_mesh, red_refine, refine_mesh
-from .results import Result, compute_results
+from .mesh import build_mesh, prolong, red_refine, refine_mesh
+from .results import Result, brief_figures, compute_results
 from .solver import solve
 
 MARK_SHARE = 0.5
@@ -65,9 +65,10 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
     while True:
         solution = solve(assemble(mesh), method=method)
         result = compute_results(solution, resistances=False)
-        fine = compute_results(solve(assemble(red_refine(mesh)), method=method),
-                               resistances=False)
-        errors = nested(result, fine)
+        refined = red_refine(mesh)
+        fine = solve(assemble(refined), method=method,
+                     initial=prolong(solution.temperature, mesh, refined), newton_steps=1)
+        errors = nested(result, {**brief_figures(fine), "nodes": len(refined.points)})
         goals = targets(result)
         step: dict[str, Any] = {
             "nodes": len(mesh.points), "max_temperature": result.summary["temperature"]["max"],

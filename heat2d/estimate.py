@@ -133,9 +133,12 @@ def ladder(nodes: int) -> tuple[float, float]:
     return (1 / RATIO**2, 1 / RATIO**4)
 
 
-def nested(result, fine) -> dict[str, Any]:
-    """Error estimates for ``result`` from the same model on its nested refinement."""
-    coarse, refined = figures(result.summary), figures(fine.summary)
+def nested(result, fine: dict[str, Any]) -> dict[str, Any]:
+    """Error estimates for ``result`` from the same model on its nested refinement.
+
+    ``fine`` is the refined solution's summary (or :func:`results.brief_figures`).
+    """
+    coarse, refined = figures(result.summary), figures(fine)
     out = {key: {"error": NESTED_FACTOR * abs(refined[key] - value), "order": None,
                  "converging": True} for key, value in coarse.items()}
     # The max is sampled at nodes: add the rise a peak may have between them.
@@ -144,7 +147,7 @@ def nested(result, fine) -> dict[str, Any]:
     return {"method": "Richardson extrapolation against a nested refinement (each triangle "
                       "split in four), order assumed 1, safety factor 2; "
                       "Zienkiewicz-Zhu recovery indicator for the energy norm",
-            "reliable": True, "nodes": [len(fine.mesh.points), len(result.mesh.points)],
+            "reliable": True, "nodes": [fine["nodes"], len(result.mesh.points)],
             "figures": out, "energy_norm": {"indicator": total, "relative": relative}}
 
 

@@ -18,7 +18,7 @@ from .assembly import assemble
 from .geometry import build_geometry
 from .mesh import build_mesh
 from .model import Model
-from .results import Result, compute_results
+from .results import Result, brief_figures, compute_results
 from .solver import solve
 
 Progress = Callable[[str, str], None]
@@ -124,7 +124,8 @@ def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
         mesh = red_refine(result.mesh)
         guess = prolong(result.solution.temperature, result.mesh, mesh)
         fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
-        annotate(result.summary, nested(result, compute_results(fine, resistances=False)))
+        annotate(result.summary, nested(result, {**brief_figures(fine),
+                                                 "nodes": len(mesh.points)}))
         return
     others = [run(model, method=method, refine=refine * f, resistances=False, estimate=False,
                   adaptive=False) for f in ladder(len(result.mesh.points))]

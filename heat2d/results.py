@@ -106,6 +106,23 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     return best, bary / bary.sum()
 
 
+def brief_figures(solution: Solution) -> dict[str, Any]:
+    """Only what :func:`heat2d.estimate.figures` reads: max temperature, probes, shape
+    max and mean, boundary heat (for the check solve of the error estimate)."""
+    system, mesh, model = solution.system, solution.mesh, solution.model
+    T = solution.temperature
+    stats = _shape_stats(mesh, T[mesh.triangles], system.layout.source,
+                         np.zeros(len(mesh.triangles)))
+    boundaries, _, _ = _boundary_heat(solution)
+    probes = {}
+    for probe in model.probes:
+        k, bary = locate(mesh.points, mesh.triangles, probe.x, probe.y, mesh.geometry.tolerance)
+        probes[probe.name] = float(bary @ T[mesh.triangles[k]])
+    return {"temperature": {"max": float(T.max())}, "probes": probes,
+            "shapes": {sh.name: stats[i] for i, sh in enumerate(model.shapes) if not sh.void},
+            "boundaries": boundaries}
+
+
 def compute_results(solution: Solution, *, timings: dict[str, float] | None = None,
                     resistances: bool = True) -> Result:
     """Derive the summary from a solution.

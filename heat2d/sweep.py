@@ -49,6 +49,8 @@ INPUTS_NAME = "inputs.json"
 VARIANT_FORMATS = ("vtu", "json", "txt")
 """Outputs written for each variant (``png`` is added on request: it takes seconds)."""
 DEFAULT_CONNECT_TIMEOUT_S = 10.0
+WORKER_CHECK_S = 5.0
+"""While waiting for a cluster's results, check this often that the workers are still there."""
 MAX_FOLDER_NAME = 120
 zip_ = zip
 """The builtin, for functions whose ``zip`` option shadows it."""
@@ -737,23 +739,42 @@ def _connect(cluster, timeout: float):
 
 
 def _run_on_cluster(client, tasks: list[_Task], finish) -> None:
-    """One chunk per worker thread; each variant is pinned to its chunk's worker."""
+    """One chunk per worker thread; each variant is pinned to its chunk's worker.
+
+    Pinned tasks would wait for ever for a worker that has left, so every few seconds
+    the workers still there are checked; the variants of one that left are cancelled
+    and recorded as failed (a re-run solves them again).
+    """
     import queue
 
     slots = [addr for addr, info in client.scheduler_info()["workers"].items()
              for _ in range(max(1, int(info.get("nthreads", 1))))]
     done: queue.Queue = queue.Queue()
-    futures = []
+    pending: dict[str, tuple[Any, _Task, str]] = {}
     for addr, chunk in zip_(slots, _chunks(tasks, len(slots))):
         for t in chunk:
             fut = client.submit(_worker_run, t, workers=[addr], allow_other_workers=False,
                                 pure=False, key=f"heat2d-variant-{t.index}-{os.urandom(6).hex()}")
-            fut.add_done_callback(lambda f, t=t: done.put((f, t)))
-            futures.append(fut)
+            pending[fut.key] = (fut, t, addr)
+            fut.add_done_callback(lambda f: done.put(f.key))
+    futures = [f for f, _, _ in pending.values()]
+    lost: set[str] = set()
     try:
-        for _ in futures:
-            fut, task = done.get()
-            finish(_outcome(fut, task))
+        while pending:
+            try:
+                key = done.get(timeout=WORKER_CHECK_S)
+            except queue.Empty:
+                alive = set(client.scheduler_info()["workers"])
+                gone = [k for k, (_, _, addr) in pending.items() if addr not in alive]
+                lost.update(gone)
+                client.cancel([pending[k][0] for k in gone])
+                continue
+            fut, task, addr = pending.pop(key)
+            if key in lost:
+                finish({"index": task.index, "status": "failed",
+                        "error": f"worker failed: {addr} left the cluster"})
+            else:
+                finish(_outcome(fut, task))
             fut.release()
     finally:
         client.cancel(futures)
