@@ -10,18 +10,15 @@ makes the error estimate. Three comparisons, each timed within this one run:
    process: geometry and mesh once, the assembly pattern once, one factorization per
    value of ``h_air`` (the powers only change the load vector).
 2. **with files** — both sides also write each variant's VTU, summary.json and
-   summary.txt (the sweep writes them in a thread while the next variant solves, and adds
-   sweep.csv and sweep.png).
+   summary.txt (the sweep adds sweep.csv and sweep.png).
 3. ``--cli`` only (slow): 20 ``heat2d run --set h_air=.. --set p_die=.. --no-estimate``
    commands, against one ``heat2d sweep`` command of the same grid: what a user would
    otherwise script, with interpreter start-up and each run's PNG map.
 
 Comparisons 1 and 2 alternate their two sides ``--repeat`` times (default 2) and the
 fastest pass of each side counts, since a busy machine slows some passes. Wall and CPU
-time are both printed: CPU counts every thread of the process, so it shows what the
-overlap of writing and solving gains on an idle machine and what it cannot on a busy
-one. Per-stage totals and the largest difference between the two sides' figures (reuse
-must not change the answers) follow.
+time (all threads of the process) are both printed, then per-stage totals and the
+largest difference between the two sides' figures (reuse must not change the answers).
 
     python benchmarks/sweep_reuse.py [--refine 4] [--repeat 2] [--cli]
 """
