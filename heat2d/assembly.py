@@ -9,6 +9,7 @@ triangles and edges; the sparsity pattern is built once and every later matrix
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import scipy.sparse as sp
@@ -89,10 +90,34 @@ class Layout:
     edge_load: np.ndarray      # (e, 2): ∫ φi dS over each exposed edge, m²
     edge_mass: np.ndarray      # (e, 2, 2): ∫ φi φj dS, m²
     iface_mass: np.ndarray     # (k, 2, 2): the same over interface edges
-    pattern: Pattern
-    tri_slots: np.ndarray
-    edge_slots: np.ndarray
-    iface_slots: np.ndarray
+    grad_b: np.ndarray         # (m, 3): ∂φi/∂x, 1/m
+    grad_c: np.ndarray         # (m, 3): ∂φi/∂y, 1/m
+    triangles: np.ndarray
+    edges: np.ndarray
+    interface_a: np.ndarray
+    interface_b: np.ndarray
+    n: int
+
+    @cached_property
+    def pattern(self) -> Pattern:
+        """The sparsity pattern, built on first use (nonlinear solves, variants)."""
+        ia, ib = self.interface_a, self.interface_b
+        return Pattern(self.n, self.triangles,
+                       np.concatenate([_block_rows(ia, ib), _block_rows(ib, ia)]),
+                       np.concatenate([_block_cols(ia, ib), _block_cols(ib, ia)]))
+
+    @property
+    def tri_slots(self) -> np.ndarray:
+        return self.pattern.slot
+
+    @cached_property
+    def edge_slots(self) -> np.ndarray:
+        e = self.edges
+        return self.pattern.slots(_block_rows(e, e), _block_cols(e, e))
+
+    @cached_property
+    def iface_slots(self) -> np.ndarray:
+        return self.pattern.slots(*_iface_blocks(self.interface_a, self.interface_b))
 
 
 def build_layout(mesh: Mesh) -> Layout:
@@ -120,20 +145,18 @@ def build_layout(mesh: Mesh) -> Layout:
     edge_load, edge_mass = _edge_terms(mesh, mesh.edges)
     _, iface_mass = _edge_terms(mesh, mesh.interface_a)
 
-    n = len(mesh.points)
-    ia, ib = mesh.interface_a, mesh.interface_b
-    coupling_rows = np.concatenate([_block_rows(ia, ib), _block_rows(ib, ia)])
-    coupling_cols = np.concatenate([_block_cols(ia, ib), _block_cols(ib, ia)])
-    pattern = Pattern(n, tri, coupling_rows, coupling_cols)
-    edges = mesh.edges
-    blocks = [(ia, ia), (ia, ib), (ib, ia), (ib, ib)]
     return Layout(kx_unit=kx_unit, ky_unit=ky_unit, source=source, volume=source.sum(axis=1),
                   edge_load=edge_load, edge_mass=edge_mass, iface_mass=iface_mass,
-                  pattern=pattern, tri_slots=pattern.slot,
-                  edge_slots=pattern.slots(_block_rows(edges, edges), _block_cols(edges, edges)),
-                  iface_slots=pattern.slots(
-                      np.concatenate([_block_rows(p, q) for p, q in blocks]),
-                      np.concatenate([_block_cols(p, q) for p, q in blocks])))
+                  grad_b=b / (2 * area)[:, None], grad_c=c / (2 * area)[:, None],
+                  triangles=tri, edges=mesh.edges, interface_a=mesh.interface_a,
+                  interface_b=mesh.interface_b, n=len(mesh.points))
+
+
+def _iface_blocks(ia: np.ndarray, ib: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows and columns of the four 2×2 blocks aa, ab, ba, bb of each interface edge."""
+    blocks = [(ia, ia), (ia, ib), (ib, ia), (ib, ib)]
+    return (np.concatenate([_block_rows(p, q) for p, q in blocks]),
+            np.concatenate([_block_cols(p, q) for p, q in blocks]))
 
 
 def _block_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -190,13 +213,37 @@ class System:
     F: np.ndarray
     fixed: np.ndarray
     fixed_value: np.ndarray
-    gradient: sp.csr_matrix
     kx: np.ndarray
     ky: np.ndarray
     qdot: np.ndarray
     edge: dict
     warnings: tuple[str, ...]
-    other_data: np.ndarray
+    other_values: np.ndarray
+
+    @cached_property
+    def other_data(self) -> np.ndarray:
+        """Convection, linearised radiation and interface terms as pattern data."""
+        L = self.layout
+        slots = [L.edge_slots]
+        if len(self.mesh.interface_id):
+            slots.append(L.iface_slots)
+        return L.pattern.data(np.concatenate(slots), self.other_values)
+
+    @cached_property
+    def gradient(self) -> sp.csr_matrix:
+        """(2m, n) CSR mapping nodal temperatures to triangle gradients (x rows, then y)."""
+        L = self.layout
+        m = len(L.triangles)
+        rows = np.concatenate([np.repeat(np.arange(m), 3), np.repeat(np.arange(m, 2 * m), 3)])
+        cols = np.concatenate([L.triangles.ravel(), L.triangles.ravel()])
+        return sp.csr_matrix((np.concatenate([L.grad_b.ravel(), L.grad_c.ravel()]),
+                              (rows, cols)), shape=(2 * m, L.n))
+
+    def gradients(self, T: np.ndarray) -> np.ndarray:
+        """Gradient of T in each triangle, (m, 2) K/m."""
+        L = self.layout
+        te = T[L.triangles]
+        return np.column_stack([(L.grad_b * te).sum(axis=1), (L.grad_c * te).sum(axis=1)])
 
     @property
     def model(self):
@@ -317,7 +364,10 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
 
     # K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV
     conduction = (kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit).ravel()
-    values, slots = [], []
+    values = []
+    edges = mesh.edges
+    rows = [np.repeat(tri, 3, axis=1).ravel(), _block_rows(edges, edges)]
+    cols = [np.tile(tri, (1, 3)).ravel(), _block_cols(edges, edges)]
     # F_i += ∫ q̇ φi dV
     qdot = _generation(mesh, L.volume)
     F = np.bincount(tri.ravel(), (qdot[:, None] * L.source).ravel(), minlength=n)
@@ -331,7 +381,6 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
     h_rad = 4 * edge["emissivity"] * SIGMA * (edge["surroundings"] + KELVIN) ** 3
     h_total = edge["h"] + h_rad
     values.append((h_total[:, None, None] * L.edge_mass).ravel())
-    slots.append(L.edge_slots)
     t_far = (edge["h"] * edge["ambient"] + h_rad * edge["surroundings"])
     F += np.bincount(mesh.edges.ravel(), (t_far[:, None] * L.edge_load).ravel(), minlength=n)
     # interface: ∫ (T_a − T_b)(φ_a − φ_b)/R″ dS  →  [[M, −M], [−M, M]]/R″
@@ -339,15 +388,21 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
         g = (1.0 / np.array([i.resistance for i in model.interfaces]))[mesh.interface_id]
         m = g[:, None, None] * L.iface_mass
         values.append(np.concatenate([m.ravel(), -m.ravel(), -m.ravel(), m.ravel()]))
-        slots.append(L.iface_slots)
-    other = L.pattern.data(np.concatenate(slots), np.concatenate(values))
-    K = L.pattern.matrix(other + L.pattern.data(L.tri_slots, conduction))
+        r, c = _iface_blocks(mesh.interface_a, mesh.interface_b)
+        rows.append(r)
+        cols.append(c)
+    other = np.concatenate(values)
+    # COO → CSR sums the element contributions (scipy's compiled loop); the pattern with
+    # its slots is built only when a later matrix of this mesh needs it.
+    K = sp.csr_matrix((np.concatenate([conduction, other]),
+                       (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+    K.sum_duplicates()
 
     fixed, fixed_value, warnings = _fixed(mesh, edge)
     _check_heat_paths(mesh, K, fixed, h_total > 0)
     return System(mesh=mesh, layout=L, K=K, F=F, fixed=fixed, fixed_value=fixed_value,
-                  gradient=_gradient(mesh), kx=kx, ky=ky, qdot=qdot, edge=edge,
-                  warnings=tuple(warnings), other_data=other)
+                  kx=kx, ky=ky, qdot=qdot, edge=edge, warnings=tuple(warnings),
+                  other_values=other)
 
 
 BOUNDARY_VALUES = ("temperature", "heat_flux", "h", "ambient", "emissivity", "surroundings")
@@ -365,21 +420,6 @@ def edge_values(mesh: Mesh) -> dict[str, np.ndarray]:
         out[key] = table[owner]
     out["flux"] = out.pop("heat_flux")
     return out
-
-
-def _gradient(mesh: Mesh) -> sp.csr_matrix:
-    """∇T per triangle, K/m: (Σ b_i T_i, Σ c_i T_i) / (2A), rows x then y."""
-    s = mesh.model.unit_m
-    tri = mesh.triangles
-    x, y = mesh.points[tri, 0], mesh.points[tri, 1]
-    b = np.column_stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]])
-    c = np.column_stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]])
-    two_a = (b[:, 0] * c[:, 1] - b[:, 1] * c[:, 0]) * s
-    m = len(tri)
-    rows = np.concatenate([np.repeat(np.arange(m), 3), np.repeat(np.arange(m, 2 * m), 3)])
-    vals = np.concatenate([(b / two_a[:, None]).ravel(), (c / two_a[:, None]).ravel()])
-    return sp.csr_matrix((vals, (rows, np.concatenate([tri.ravel(), tri.ravel()]))),
-                         shape=(2 * m, len(mesh.points)))
 
 
 def _generation(mesh: Mesh, volume: np.ndarray) -> np.ndarray:

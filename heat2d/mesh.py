@@ -55,6 +55,8 @@ class Mesh:
     interface_id: np.ndarray
     axis_length: float = 0.0
     raw: dict = field(default_factory=dict, compare=False, repr=False)
+    cache: dict = field(init=False, default_factory=dict, compare=False, repr=False)
+    """Figures of the mesh alone (areas, smallest angle), shared by variants that reuse it."""
 
     @property
     def model(self):
@@ -63,9 +65,11 @@ class Mesh:
     @property
     def areas(self) -> np.ndarray:
         """Triangle areas in length_unit²."""
-        p = self.points[self.triangles]
-        d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
-        return 0.5 * (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0])
+        if "areas" not in self.cache:
+            p = self.points[self.triangles]
+            d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
+            self.cache["areas"] = 0.5 * (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0])
+        return self.cache["areas"]
 
     @property
     def edge_lengths(self) -> np.ndarray:
@@ -74,6 +78,11 @@ class Mesh:
 
     def min_angle(self) -> float:
         """Smallest interior angle of any triangle, degrees."""
+        if "min_angle" not in self.cache:
+            self.cache["min_angle"] = self._min_angle()
+        return self.cache["min_angle"]
+
+    def _min_angle(self) -> float:
         p = self.points[self.triangles]
         e = [p[:, (i + 1) % 3] - p[:, i] for i in range(3)]
         lengths = [np.hypot(v[:, 0], v[:, 1]) for v in e]

@@ -87,8 +87,8 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         return value
 
     old = reuse.solution if reuse is not None else None
-    if old is not None and geometry_key(old.model, old.mesh.geometry.refine) == \
-            geometry_key(model, refine):
+    if old is not None and not (model.adaptive and adaptive) and \
+            geometry_key(old.model, old.mesh.geometry.refine) == geometry_key(model, refine):
         mesh = stage("mesh", rebind, old.mesh, model)
         system = stage("assembly", assemble, mesh, layout=old.system.layout)
         same = (np.array_equal(system.K.data, old.system.K.data)
@@ -140,4 +140,6 @@ def rebind(mesh, model: Model):
     geometry = replace(mesh.geometry, model=model)
     material_index = {m.name: i for i, m in enumerate(model.materials)}
     shape_material = np.array([material_index.get(s.material, -1) for s in model.shapes])
-    return replace(mesh, geometry=geometry, triangle_material=shape_material[mesh.triangle_shape])
+    new = replace(mesh, geometry=geometry, triangle_material=shape_material[mesh.triangle_shape])
+    object.__setattr__(new, "cache", mesh.cache)       # same triangles: same areas, angles
+    return new
