@@ -392,11 +392,17 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
         rows.append(r)
         cols.append(c)
     other = np.concatenate(values)
-    # COO → CSR sums the element contributions (scipy's compiled loop); the pattern with
-    # its slots is built only when a later matrix of this mesh needs it.
-    K = sp.csr_matrix((np.concatenate([conduction, other]),
-                       (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
-    K.sum_duplicates()
+    if "pattern" in L.__dict__:
+        # A layout that has its pattern already (a variant, a nonlinear model): refill.
+        P = L.pattern
+        slots = [L.edge_slots, L.iface_slots] if len(mesh.interface_id) else [L.edge_slots]
+        K = P.matrix(P.data(L.tri_slots, conduction) + P.data(np.concatenate(slots), other))
+    else:
+        # COO → CSR sums the element contributions (scipy's compiled loop); the pattern
+        # with its slots is built only when a later matrix of this mesh needs it.
+        K = sp.csr_matrix((np.concatenate([conduction, other]),
+                           (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+        K.sum_duplicates()
 
     fixed, fixed_value, warnings = _fixed(mesh, edge)
     _check_heat_paths(mesh, K, fixed, h_total > 0)

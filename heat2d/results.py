@@ -106,6 +106,14 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     return best, bary / bary.sum()
 
 
+def probe_weights(mesh, x: float, y: float) -> tuple[int, np.ndarray]:
+    """:func:`locate` for a probe, remembered in the mesh's cache (variants share it)."""
+    key = ("probe", x, y)
+    if key not in mesh.cache:
+        mesh.cache[key] = locate(mesh.points, mesh.triangles, x, y, mesh.geometry.tolerance)
+    return mesh.cache[key]
+
+
 def brief_figures(solution: Solution) -> dict[str, Any]:
     """Only what :func:`heat2d.estimate.figures` reads: max temperature, probes, shape
     max and mean, boundary heat (for the check solve of the error estimate)."""
@@ -116,7 +124,7 @@ def brief_figures(solution: Solution) -> dict[str, Any]:
     boundaries, _, _ = _boundary_heat(solution)
     probes = {}
     for probe in model.probes:
-        k, bary = locate(mesh.points, mesh.triangles, probe.x, probe.y, mesh.geometry.tolerance)
+        k, bary = probe_weights(mesh, probe.x, probe.y)
         probes[probe.name] = float(bary @ T[mesh.triangles[k]])
     return {"temperature": {"max": float(T.max())}, "probes": probes,
             "shapes": {sh.name: stats[i] for i, sh in enumerate(model.shapes) if not sh.void},
@@ -156,7 +164,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
     boundaries, balance, insulated = _boundary_heat(solution)
     probes = {}
     for probe in model.probes:
-        k, bary = locate(mesh.points, tri, probe.x, probe.y, mesh.geometry.tolerance)
+        k, bary = probe_weights(mesh, probe.x, probe.y)
         if k < 0:
             raise ModelError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body",
                              file=model.source, entry=f"probe \"{probe.name}\"",

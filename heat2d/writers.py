@@ -19,7 +19,7 @@ import numpy as np
 from .errors import Heat2dError
 from .results import Result
 
-VTU_COMPRESS_LIMIT = 100_000
+VTU_COMPRESS_LIMIT = 20_000
 """VTU files of meshes with more nodes are written uncompressed (speed over size)."""
 
 
