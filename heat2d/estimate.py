@@ -214,12 +214,14 @@ def estimate(result, others: list) -> dict[str, Any]:
     result
         The run's result.
     others
-        Results on the meshes of :func:`ladder`, finer first.
+        Summaries (or :func:`results.brief_figures` with ``"nodes"``) on the meshes of
+        :func:`ladder`.
     """
-    meshes = sorted([result, *others], key=lambda r: -len(r.mesh.points))
-    of = next(i for i, r in enumerate(meshes) if r is result)
-    nodes = [len(r.mesh.points) for r in meshes]
-    values = [figures(r.summary) for r in meshes]
+    own = {**result.summary, "nodes": len(result.mesh.points)}
+    meshes = sorted([own, *others], key=lambda r: -r["nodes"])
+    of = next(i for i, r in enumerate(meshes) if r is own)
+    nodes = [r["nodes"] for r in meshes]
+    values = [figures(r) for r in meshes]
     out: dict[str, Any] = {}
     for key in values[of]:
         est = grid_convergence([v[key] for v in values], nodes, of=of)

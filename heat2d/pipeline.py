@@ -130,8 +130,11 @@ def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
         annotate(result.summary, nested(result, {**brief_figures(fine),
                                                  "nodes": len(mesh.points)}))
         return
-    others = [run(model, method=method, refine=refine * f, resistances=False, estimate=False,
-                  adaptive=False) for f in ladder(len(result.mesh.points))]
+    others = []
+    for f in ladder(len(result.mesh.points)):
+        coarse = build_mesh(build_geometry(model, refine=refine * f))
+        solution = solve(assemble(coarse), method=method)
+        others.append({**brief_figures(solution), "nodes": len(coarse.points)})
     annotate(result.summary, estimate(result, others))
     result.summary["warnings"].append(
         "error estimate from coarser, non-nested meshes (the run is too large to refine "

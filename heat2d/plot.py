@@ -40,8 +40,12 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     full_h = float(np.clip(width * 0.8 * aspect, 0.6, 7.5))
     zoom_h = width * 0.8 / ZOOM_ASPECT if zoom else 0.0
     if fig is None:
-        fig = Figure(figsize=(width, full_h + zoom_h + 1.4 + (0.8 if zoom else 0.0)),
-                     layout="constrained")
+        # Fixed margins (in inches) instead of a layout engine, which would draw the
+        # figure twice.
+        height = full_h + zoom_h + 1.6 + (0.9 if zoom else 0.0)
+        fig = Figure(figsize=(width, height))
+        fig.subplots_adjust(left=0.8 / width, right=1 - 1.1 / width, bottom=0.75 / height,
+                            top=1 - 0.75 / height, hspace=0.9 / max(full_h + zoom_h, 1.0) * 2)
     axes = fig.subplots(2 if zoom else 1, 1, squeeze=False,
                         height_ratios=[full_h, zoom_h] if zoom else None)[:, 0]
     triangulations = [mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)]
@@ -129,7 +133,7 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
 
 RASTER_ABOVE = 100_000
 """Panels with more triangles are drawn from a pixel grid."""
-RASTER_PIXELS = 1000
+RASTER_PIXELS = 800
 
 
 def ax_extent(k: int, window, mesh) -> tuple[float, float, float, float]:

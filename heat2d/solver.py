@@ -44,8 +44,9 @@ class Factor:
     """Solves with one matrix, and refactors later matrices of the same pattern reusing
     the fill-reducing ordering (direct) or the multigrid hierarchy (iterative)."""
 
-    def __init__(self, method: str, A: sp.csr_matrix) -> None:
+    def __init__(self, method: str, A: sp.csr_matrix, *, keep_order: bool = True) -> None:
         self.method = method
+        self.keep_order = keep_order
         self.order: np.ndarray | None = None
         self.ml = None
         self.iterations = 0
@@ -56,7 +57,12 @@ class Factor:
 
         self.A = A
         if self.method == "direct":
-            if first:
+            if first and not self.keep_order:
+                # A single matrix: SuperLU's default column ordering is as fast or faster.
+                self.lu = spla.splu(A.tocsc())
+                self.permuted = False
+            elif first:
+                # Matrices to come (Newton): a symmetric ordering that later ones reuse.
                 lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A",
                                options={"SymmetricMode": True})
                 self.order = np.argsort(lu.perm_c)
@@ -214,11 +220,11 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         x = factor(rhs)
         residual = _relative(Kff, x, rhs)
     else:
-        factor, x, residual = _attempt(chosen, Kff, rhs)
+        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
     if residual > ACCEPT_RESIDUAL and chosen != "direct":
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
-        factor, x, residual = _attempt(chosen, Kff, rhs)
+        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
     if not np.isfinite(residual) or residual > ACCEPT_RESIDUAL:
         raise SolveError(f"linear solve failed: relative residual {residual:.2e} with {chosen}",
                          file=system.model.source)
@@ -231,9 +237,10 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
                     tuple(notes), tuple(history), factor, free)
 
 
-def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray) -> tuple[Factor, np.ndarray, float]:
+def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray, keep_order: bool
+             ) -> tuple[Factor, np.ndarray, float]:
     try:
-        factor = Factor(name, A)
+        factor = Factor(name, A, keep_order=keep_order)
         x = factor(b)
     except (RuntimeError, ValueError, np.linalg.LinAlgError) as exc:
         if name == "direct":
