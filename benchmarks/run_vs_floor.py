@@ -35,6 +35,10 @@ BOARD_LENGTH = 30.0
 """Board length in mm; the copper layers set a floor of about 4 700 nodes."""
 
 
+
+EXTRA: list[str] = []
+"""Extra options for the whole `heat2d run` (set from the command line)."""
+
 def board_model(size: float, *, length: float = BOARD_LENGTH) -> str:
     """A board cross-section in mm with target mesh edge length ``size``."""
     half = length / 2
@@ -184,7 +188,7 @@ def whole_run(model_path: Path, out_dir: Path, method: str = "auto") -> dict:
         writers.WRITERS[name] = (pattern, timed(name, func))
     try:
         start, cpu = time.perf_counter(), time.process_time()
-        argv = ["run", str(model_path), "--out", str(out_dir), "--quiet"]
+        argv = ["run", str(model_path), "--out", str(out_dir), "--quiet", *EXTRA]
         status = heat2d.cli.main(argv + ([] if method == "auto" else ["--method", method]))
         whole = time.perf_counter() - start
         cpu = time.process_time() - cpu
@@ -341,11 +345,15 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--nodes", type=int, default=200_000, help="target node count")
     parser.add_argument("--repeat", type=int, default=1, help="repeats; the minimum is kept")
+    parser.add_argument("--no-estimate", action="store_true",
+                        help="pass --no-estimate to heat2d run (the run without the "
+                             "discretization error estimate)")
     parser.add_argument("--method", default="auto", choices=("auto", "direct", "multigrid"),
                         help="solver passed to heat2d run (default: its own choice)")
     parser.add_argument("--blas-threads", type=int, metavar="N",
                         help="set OPENBLAS/OMP/MKL_NUM_THREADS=N before numpy is loaded")
     args = parser.parse_args(argv)
+    EXTRA[:] = ["--no-estimate"] if args.no_estimate else []
     if args.blas_threads is not None:
         if "numpy" in sys.modules:
             parser.error("--blas-threads must be applied before numpy is imported")
