@@ -926,20 +926,26 @@ class _Reader:
                             self.index.find(*where, key.split("[")[0]))
         return (self.number(p[0], entry, key, where), self.number(p[1], entry, key, where))
 
+    def named_entry(self, spec: dict[str, Any], table: str, i: int, seen: set[str]
+                    ) -> tuple[str, str, tuple[str, int]]:
+        """Check an array-of-tables entry's keys and unique name; (name, entry, where)."""
+        where = (table, i)
+        name = spec.get("name")
+        entry = f"{table} \"{name}\"" if isinstance(name, str) else f"{table} #{i + 1}"
+        self.check_keys(spec, table, entry, where)
+        name = self.string(name, entry, "name", where)
+        if name in seen:
+            raise self.fail(entry, f"name already used by another {table}",
+                            self.index.find(*where, "name"))
+        seen.add(name)
+        return name, entry, where
+
     def read_boundaries(self, raw: list[dict[str, Any]], by_name: dict[str, Shape],
                         groups: dict[str, Group]) -> list[Boundary]:
         out: list[Boundary] = []
         seen: set[str] = set()
         for i, spec in enumerate(raw):
-            where = ("boundary", i)
-            name = spec.get("name")
-            entry = f"boundary \"{name}\"" if isinstance(name, str) else f"boundary #{i + 1}"
-            self.check_keys(spec, "boundary", entry, where)
-            name = self.string(name, entry, "name", where)
-            if name in seen:
-                raise self.fail(entry, "name already used by another boundary",
-                                self.index.find(*where, "name"))
-            seen.add(name)
+            name, entry, where = self.named_entry(spec, "boundary", i, seen)
             if "on" not in spec:
                 raise self.fail(entry, "needs on = a selector", self.index.find(*where))
             selector = self.selector(spec["on"], by_name, groups, entry, where)
@@ -1029,15 +1035,7 @@ class _Reader:
         out: list[Interface] = []
         seen: set[str] = set()
         for i, spec in enumerate(raw):
-            where = ("interface", i)
-            name = spec.get("name")
-            entry = f"interface \"{name}\"" if isinstance(name, str) else f"interface #{i + 1}"
-            self.check_keys(spec, "interface", entry, where)
-            name = self.string(name, entry, "name", where)
-            if name in seen:
-                raise self.fail(entry, "name already used by another interface",
-                                self.index.find(*where, "name"))
-            seen.add(name)
+            name, entry, where = self.named_entry(spec, "interface", i, seen)
             pair = spec.get("between")
             line = self.index.find(*where, "between")
             if not (isinstance(pair, list) and len(pair) == 2
@@ -1061,15 +1059,7 @@ class _Reader:
         out: list[Probe] = []
         seen: set[str] = set()
         for i, spec in enumerate(raw):
-            where = ("probe", i)
-            name = spec.get("name")
-            entry = f"probe \"{name}\"" if isinstance(name, str) else f"probe #{i + 1}"
-            self.check_keys(spec, "probe", entry, where)
-            name = self.string(name, entry, "name", where)
-            if name in seen:
-                raise self.fail(entry, "name already used by another probe",
-                                self.index.find(*where, "name"))
-            seen.add(name)
+            name, entry, where = self.named_entry(spec, "probe", i, seen)
             if "at" not in spec:
                 raise self.fail(entry, "needs at = [x, y]", self.index.find(*where))
             x, y = self.point(spec["at"], entry, "at", where)
