@@ -17,7 +17,7 @@ import numpy as np
 
 from .assembly import assemble
 from .errors import ModelError
-from .estimate import annotate, nested, recovery_indicator
+from .estimate import annotate, nested, probe_corrections, recovery_indicator
 from .geometry import Geometry
 from .mesh import build_mesh, prolong, red_refine, refine_mesh
 from .results import Result, brief_figures, compute_results
@@ -68,7 +68,8 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         refined = red_refine(mesh)
         fine = solve(assemble(refined), method=method,
                      initial=prolong(solution.temperature, mesh, refined), newton_steps=1)
-        errors = nested(result, {**brief_figures(fine), "nodes": len(refined.points)})
+        errors = nested(result, {**brief_figures(fine), "nodes": len(refined.points),
+                                  "probe_corrections": probe_corrections(fine)})
         goals = targets(result)
         step: dict[str, Any] = {
             "nodes": len(mesh.points), "max_temperature": result.summary["temperature"]["max"],

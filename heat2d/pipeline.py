@@ -120,7 +120,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
 
 
 def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
-    from .estimate import REFINED_LIMIT, annotate, estimate, ladder, nested
+    from .estimate import REFINED_LIMIT, annotate, estimate, ladder, nested, probe_corrections
     from .mesh import prolong, red_refine
 
     if len(result.mesh.points) <= REFINED_LIMIT:
@@ -128,7 +128,8 @@ def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
         guess = prolong(result.solution.temperature, result.mesh, mesh)
         fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
         annotate(result.summary, nested(result, {**brief_figures(fine),
-                                                 "nodes": len(mesh.points)}))
+                                                 "nodes": len(mesh.points),
+                                                 "probe_corrections": probe_corrections(fine)}))
         return
     others = []
     for f in ladder(len(result.mesh.points)):

@@ -18,6 +18,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import re
+from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
@@ -96,6 +97,10 @@ class Case:
     source: str
     text: str
     exact: dict[str, float]
+    field: Callable[[float, float], float]
+    """The exact temperature at (x, y), model units."""
+    sample: Callable[[np.random.Generator], tuple[float, float]]
+    """A random point inside the body (for probes scattered over it)."""
 
 
 def plate() -> Case:
@@ -125,9 +130,11 @@ temperature = {t1}
 """ + probes_toml(probes)
     exact = {f"probes.{n}": t1 + (t2 - t1) * plate_series(x, y, side, side)
              for n, (x, y) in probes.items()}
-    exact["temperature.max"] = t2                # held on the top edge
+    exact["temperature.max"] = exact["shapes.plate.max"] = t2      # held on the top edge
     exact["shapes.plate.mean"] = t1 + 0.25 * (t2 - t1)
-    return Case("Inc §4.2, Eq. 4.19", text, exact)
+    return Case("Inc §4.2, Eq. 4.19", text, exact,
+                lambda x, y: t1 + (t2 - t1) * plate_series(x, y, side, side),
+                lambda rng: tuple(rng.uniform(0.1, side - 0.1, 2)))
 
 
 def generation_slab() -> Case:
@@ -167,12 +174,15 @@ on = "slab.top"
 temperature = {ts2}
 """ + probes_toml(probes)
     exact = {"temperature.max": temp((half + x_star) * 1e3),
+             "shapes.slab.max": temp((half + x_star) * 1e3),
              **{f"probes.{n}": temp(y) for n, (_, y) in probes.items()},
              "boundaries.top.heat_out_w": q_top * width * depth,
              "boundaries.bottom.heat_out_w": power - q_top * width * depth,
              # mean of the parabola: (Ts1 + Ts2)/2 + q̇L²/(3k)
              "shapes.slab.mean": (ts1 + ts2) / 2 + qdot * half**2 / (3 * k)}
-    return Case("Inc §3.5.1, two surface temperatures", text, exact)
+    return Case("Inc §3.5.1, two surface temperatures", text, exact,
+                lambda x, y: temp(y),
+                lambda rng: (rng.uniform(0.1, 5.9), rng.uniform(0.01, 1.99)))
 
 
 def cylinder_wall() -> Case:
@@ -207,8 +217,10 @@ temperature = {t2}
     exact = {"boundaries.outer.heat_out_w": q, "boundaries.inner.heat_out_w": -q,
              **{f"probes.{n}": t1 - (t1 - t2) * math.log(x / r1) / ln
                 for n, (x, _) in probes.items()},
-             "shapes.wall.mean": mean}
-    return Case("Inc §3.3.1, Table 3.3", text, exact)
+             "shapes.wall.mean": mean, "shapes.wall.max": t1}
+    return Case("Inc §3.3.1, Table 3.3", text, exact,
+                lambda x, y: t1 - (t1 - t2) * math.log(x / r1) / ln,
+                lambda rng: (rng.uniform(1.01, 3.99), rng.uniform(0.01, 0.99)))
 
 
 def pipe_wall() -> Case:
@@ -252,8 +264,16 @@ ambient = {t_inf}
 """ + probes_toml(probes)
     exact = {"boundaries.air.heat_out_w": q, "boundaries.inner.heat_out_w": -q,
              **{f"probes.{n}": temp(math.hypot(x, y)) for n, (x, y) in probes.items()},
-             "temperature.max": t1, "shapes.pipe.mean": mean}
-    return Case("Inc §3.3.1, Table 3.3", text, exact)
+             "temperature.max": t1, "shapes.pipe.mean": mean, "shapes.pipe.max": t1}
+
+    def sample(rng):
+        # Radii inside the 2.05..5.9 mm band: the circles are polygons, whose chords cut
+        # up to r(1 − cos(π/n)) inside the outer circle.
+        r, a = rng.uniform(2.05, 5.9), rng.uniform(0, 2 * math.pi)
+        return r * math.cos(a), r * math.sin(a)
+
+    return Case("Inc §3.3.1, Table 3.3", text, exact, lambda x, y: temp(math.hypot(x, y)),
+                sample)
 
 
 FIN = {"k": 15.0, "t": 1e-3, "length": 50e-3, "h": 25.0, "t_base": 100.0, "t_air": 25.0}
@@ -312,8 +332,11 @@ ambient = {f["t_air"]}
     exact = {"boundaries.base.heat_out_w": -q, "boundaries.air.heat_out_w": q,
              **{f"probes.{n}": fin_two_d(x * 1e-3, y * 1e-3 - f["t"] / 2)[0]
                 for n, (x, y) in probes.items()},
-             "temperature.max": f["t_base"], "shapes.fin.mean": mean}
-    return Case("Inc §3.6, Table 3.4 case A (2-D)", text, exact)
+             "temperature.max": f["t_base"], "shapes.fin.mean": mean,
+             "shapes.fin.max": f["t_base"]}
+    return Case("Inc §3.6, Table 3.4 case A (2-D)", text, exact,
+                lambda x, y: fin_two_d(x * 1e-3, y * 1e-3 - f["t"] / 2)[0],
+                lambda rng: (rng.uniform(0.5, 49.9), rng.uniform(0.01, 0.99)))
 
 
 def rod() -> Case:
@@ -343,10 +366,13 @@ name = "half_radius"
 at = [1.0, 0.3]
 """
     exact = {"temperature.max": ts + qdot * r0**2 / (4 * k),
+             "shapes.rod.max": ts + qdot * r0**2 / (4 * k),
              "probes.half_radius": ts + qdot * r0**2 / (4 * k) * (1 - 0.25),
              "boundaries.skin.heat_out_w": qdot * math.pi * r0**2 * height,
              "shapes.rod.mean": ts + qdot * r0**2 / (8 * k)}
-    return Case("Inc §3.5.2", text, exact)
+    return Case("Inc §3.5.2", text, exact,
+                lambda x, y: ts + qdot * r0**2 / (4 * k) * (1 - (x * 1e-3 / r0) ** 2),
+                lambda rng: (rng.uniform(0.01, 1.99), rng.uniform(0.01, 0.99)))
 
 
 CASES = {"plate": plate, "generation_slab": generation_slab, "cylinder_wall": cylinder_wall,
@@ -494,14 +520,7 @@ SWEEPS = {  # problem: (first [mesh] size, number of sizes, each √2 finer), �
     "pipe_wall": (1.5, 7),
     "generation_slab": (0.5, 8),
 }
-SWEEP_DISHONEST = {
-    "pipe_wall": "probes.inner (r = 2.97 mm, next to the bore): true 8.59e-4 K, reported "
-                 "5.03e-4 K (1.7x) at 5363 nodes; the other six meshes are covered since the "
-                 "nested refinement moves chord midpoints onto the bore (before that, 2.0x "
-                 "at 172 and 2705 nodes: the outline's own error was missing)",
-    "generation_slab": "probes.a: true 9.31e-6 K, reported 5.67e-6 K (1.6x) at 11401 nodes "
-                       "(size 0.044 mm); 0 of the other 47 figures",
-}
+SWEEP_DISHONEST: dict[str, str] = {}
 
 
 @pytest.mark.parametrize("name", [
@@ -518,6 +537,63 @@ def test_estimate_covers_the_true_error_over_a_mesh_sweep(name, monkeypatch):
     print(f"\n{name}, [mesh] size {first} to {first * 2 ** (-(count - 1) / 2):.3g}:")
     runs = [(heat2d.solve(heat2d.parse(with_size(text, first * 2 ** (-j / 2)))), exact)
             for j in range(count)]
+    assert not sweep_failures(runs)
+
+
+# ---------------------------------------------------------------------------------------
+# Probes anywhere
+#
+# A probe's error depends on where it falls inside its triangle, and that changes from
+# mesh to mesh; the fixed probes above could sit in lucky places. Here each problem gets
+# probes at seeded random points, on meshes from coarse to fine, and every one of them
+# must be covered. (Before the interpolation correction of estimate.probe_corrections,
+# 144 of 6 560 such probes were under-estimated, by up to orders of magnitude where a
+# probe's coarse and refined values happened to agree.)
+
+SCATTER = {  # problem: first [mesh] size, model units
+    "plate": 2.0, "generation_slab": 0.5, "cylinder_wall": 0.5, "pipe_wall": 1.5,
+    "fin": 1.0, "rod": 0.5, "corner": 0.3,
+}
+
+
+def _sample_corner(rng) -> tuple[float, float]:
+    while True:
+        x, y = rng.uniform(-0.99, 0.99, 2)
+        if not (x > 0 and y < 0):
+            return float(x), float(y)
+
+
+def scattered(name: str, count: int, seed: int) -> tuple[str, dict[str, float]]:
+    """The problem's model text without its own probes, plus ``count`` probes at random
+    points (seeded), and the exact figures (the problem's own, and each probe's)."""
+    rng = np.random.default_rng(seed)
+    if name == "corner":
+        text, exact = L_TEXT, corner_exact()
+        field, sample = (lambda x, y: float(corner_field(x, y))), _sample_corner
+    else:
+        case = CASES[name]()
+        text, exact, field, sample = case.text, case.exact, case.field, case.sample
+    points = {f"p{i}": tuple(float(v) for v in sample(rng)) for i in range(count)}
+    text = text.split("\n[[probe]]")[0] + "\n" + probes_toml(points)
+    return text, {**{k: v for k, v in exact.items() if not k.startswith("probes.")},
+                  **{f"probes.{n}": field(x, y) for n, (x, y) in points.items()}}
+
+
+def scattered_runs(name: str, sizes: list[float], count: int, seed: int, monkeypatch):
+    """Runs of :func:`scattered` at each [mesh] size, with the exact values."""
+    if name == "corner":
+        monkeypatch.setattr(pipeline, "assemble", corner_assemble)
+    text, exact = scattered(name, count, seed)
+    return [(heat2d.solve(heat2d.parse(with_size(text, size))), exact) for size in sizes]
+
+
+@pytest.mark.parametrize("name", list(SCATTER))
+def test_estimate_covers_probes_at_random_points(name, monkeypatch):
+    # 30 probes, three meshes (size ÷1, ÷2, ÷4); seed 11 was not among those that the
+    # margins of estimate.nested were chosen on (benchmarks/estimate_coverage.py).
+    first = SCATTER[name]
+    print(f"\n{name}, 30 random probes and the problem's figures, [mesh] size {first} to {first / 4:.3g}:")
+    runs = scattered_runs(name, [first, first / 2, first / 4], 30, 11, monkeypatch)
     assert not sweep_failures(runs)
 
 
