@@ -202,9 +202,33 @@ def format_summary(summary: dict) -> str:
     ]
     if "errors" in summary:
         e = summary["errors"]
-        lines.append(f"Error estimate  ± figures: grid convergence over meshes of "
-                     f"{', '.join(str(n) for n in e['nodes'])} nodes; energy-norm indicator "
+        if e["reliable"]:
+            how = (f"against a nested refinement ({e['nodes'][0]} nodes, every triangle "
+                   "split in four)")
+        else:
+            how = (f"grid convergence over non-nested meshes of "
+                   f"{', '.join(str(n) for n in e['nodes'])} nodes (less reliable)")
+        lines.append(f"Error estimate  ± figures {how}; energy-norm indicator "
                      f"{100 * e['energy_norm']['relative']:.2g} %")
+    if "adaptive" in summary:
+        lines += _adaptive_lines(summary["adaptive"])
     lines += [f"warning: {w}" for w in summary["warnings"]]
     lines += ["", "CAUTION: " + summary["caution"]]
     return "\n".join(lines)
+
+
+def _adaptive_lines(adaptive: dict) -> list[str]:
+    """The adaptive refinement steps: nodes, max temperature and each target's estimate."""
+    keys = list(adaptive["targets"])
+    names = ["max" if k == "temperature.max" else k.split(".", 1)[1] for k in keys]
+    asked = ", ".join(f"{n} ± {adaptive['targets'][k]:.3g} K" for n, k in zip(names, keys,
+                                                                            strict=True))
+    steps = adaptive["steps"]
+    state = "reached" if adaptive["reached"] else "NOT reached (node budget)"
+    lines = [f"Adaptive        {asked}: {state} after {len(steps)} mesh(es)",
+             f"  {'step':>4} {'nodes':>8} {'max °C':>10}"
+             + "".join(f" {'± ' + n[:10]:>12}" for n in names)]
+    for i, step in enumerate(steps, 1):
+        lines.append(f"  {i:>4} {step['nodes']:>8} {step['max_temperature']:>10.3f}"
+                     + "".join(f" {step['estimate'][k]:>12.2g}" for k in keys))
+    return lines
