@@ -20,11 +20,15 @@ from .errors import ModelError
 from .estimate import annotate, nested, probe_corrections, recovery_indicator
 from .geometry import Geometry
 from .mesh import build_mesh, prolong, red_refine, refine_mesh
-from .results import Result, brief_figures, compute_results
+from .results import Result, brief_figures, compute_results, probe_weights
 from .solver import solve
 
 MARK_SHARE = 0.5
 """Dörfler parameter: refine the fewest triangles that carry this share of Σ η²."""
+MIN_MARKED = 0.1
+"""At least this fraction of the triangles is refined per step: a goal-oriented indicator
+can be so concentrated that half of it sits in a handful of triangles, and every step
+costs a solve and a check solve."""
 AREA_FACTOR = 0.3
 """Marked triangles get an area bound of this fraction of their area (about half the size)."""
 GROWTH = 4.0
@@ -78,8 +82,7 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         steps.append(step)
         if reached or len(mesh.points) * GROWTH > budget:
             break
-        eta, _, _ = recovery_indicator(solution)
-        bounds = _area_bounds(mesh, eta)
+        bounds = _area_bounds(mesh, goal_indicator(solution, goals, step["estimate"]))
         if not (bounds > 0).any():
             break                               # nothing left that may be refined
         mesh = refine_mesh(mesh, bounds)
@@ -99,13 +102,53 @@ data jump (two held temperatures meet) the indicator never falls, and refinement
 stop somewhere."""
 
 
-def _area_bounds(mesh, eta: np.ndarray) -> np.ndarray:
-    """Area bounds for the triangles that carry MARK_SHARE of Σ η² (largest first)."""
+def goal_indicator(solution, goals: dict[str, float],
+                   errors: dict[str, float] | None = None) -> np.ndarray:
+    """Each triangle's share of the error of the target figures (goal-oriented).
+
+    The error of a point value T(x₀) is a(e, z): the error e weighted by the influence
+    function z (K z = δ at x₀; a Green's function), so per triangle it is bounded by
+    ‖e‖_K·‖z‖_K (Cauchy–Schwarz in the energy norm). Both are estimated by the recovery
+    indicator (the product indicator of Ainsworth & Oden, *A Posteriori Error Estimation
+    in Finite Element Analysis*, Wiley 2000, ch. 8, from memory). Each target adds its
+    product over its accuracy. z costs one solve with the run's factor per target. The
+    maximum temperature's influence function averages the nodes within the max's
+    estimated error (``errors``, by figure key) of the hottest one.
+    """
+    errors = errors or {}
+    eta, _, _ = recovery_indicator(solution)
+    mesh, free = solution.mesh, solution.free
+    total = np.zeros(len(mesh.triangles))
+    for key, accuracy in goals.items():
+        load = np.zeros(len(mesh.points))
+        if key == "temperature.max":
+            # Every node that may be the true hottest: within the max's estimated error
+            # of the hottest node (a ridge of near-equal maxima counts as a whole).
+            T = solution.temperature
+            hot = T >= T.max() - errors.get(key, 0.0)
+            load[hot] = 1.0 / np.count_nonzero(hot)
+        else:
+            probe = next(p for p in mesh.model.probes if f"probes.{p.name}" == key)
+            k, bary = probe_weights(mesh, probe.x, probe.y)
+            load[mesh.triangles[k]] = bary
+        if free is None or solution.factor is None or not load[free].any():
+            continue                            # held point: the figure has no error
+        z = np.zeros(len(mesh.points))
+        z[free] = solution.factor(load[free])
+        eta_z, _, _ = recovery_indicator(solution, z)
+        total += eta * eta_z / accuracy
+    return total if total.any() else eta**2
+
+
+def _area_bounds(mesh, contribution: np.ndarray) -> np.ndarray:
+    """Area bounds for the fewest triangles that carry MARK_SHARE of the total error
+    ``contribution`` (largest first)."""
     floor = (MIN_SIZE_FRACTION * mesh.geometry.size) ** 2
-    eta = np.where(mesh.areas > 4 * floor, eta, 0.0)
+    eta = np.where(mesh.areas > 4 * floor, contribution, 0.0)
     order = np.argsort(-eta)
-    share = np.cumsum(eta[order] ** 2) / max((eta**2).sum(), 1e-300)
-    count = int(np.searchsorted(share, MARK_SHARE)) + 1
+    share = np.cumsum(eta[order]) / max(eta.sum(), 1e-300)
+    count = max(int(np.searchsorted(share, MARK_SHARE)) + 1,
+                int(MIN_MARKED * np.count_nonzero(eta)))
     bounds = np.full(len(eta), -1.0)
     marked = order[:count]
     bounds[marked] = AREA_FACTOR * mesh.areas[marked]

@@ -76,8 +76,10 @@ class Estimate:
     converging: bool
 
 
-def recovery_indicator(solution) -> tuple[np.ndarray, float, float]:
-    """Zienkiewicz–Zhu indicator per triangle.
+def recovery_indicator(solution, field: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, float, float]:
+    """Zienkiewicz–Zhu indicator per triangle, of the solution or of another nodal
+    ``field`` on its mesh (weighted by the solution's conductivity).
 
     Returns
     -------
@@ -89,10 +91,10 @@ def recovery_indicator(solution) -> tuple[np.ndarray, float, float]:
         ``total`` over the energy norm of the solution.
     """
     system = solution.system
-    T = solution.temperature
-    diff = _gradient_jumps(solution)
+    T = solution.temperature if field is None else field
+    diff = _gradient_jumps(solution, field)
     volume = system.layout.volume
-    kx, ky, _, _ = system.conductivity(T)
+    kx, ky, _, _ = system.conductivity(solution.temperature)
     # ∫ (Σ φ_i e_i)² dV = V/6 (Σ e_i² + (Σ e_i)²) per component, V = ∫ dV (planar exact)
     sq = (diff**2).sum(axis=1) + diff.sum(axis=1) ** 2                     # (m, 2)
     eta2 = volume / 6 * (kx * sq[:, 0] + ky * sq[:, 1])
@@ -101,8 +103,9 @@ def recovery_indicator(solution) -> tuple[np.ndarray, float, float]:
     return np.sqrt(eta2), total, total / math.sqrt(energy) if energy > 0 else 0.0
 
 
-def _gradient_jumps(solution) -> np.ndarray:
-    """Recovered minus element gradient at each vertex of each triangle, (m, 3, 2) K/m.
+def _gradient_jumps(solution, field: np.ndarray | None = None) -> np.ndarray:
+    """Recovered minus element gradient at each vertex of each triangle, (m, 3, 2) K/m,
+    of the solution (or of another nodal ``field``).
 
     The recovered gradient is the volume-weighted average of the element gradients of
     one material around a node (materials apart: the gradient jumps across them).
@@ -110,7 +113,7 @@ def _gradient_jumps(solution) -> np.ndarray:
     system, mesh = solution.system, solution.mesh
     tri = mesh.triangles
     m = len(tri)
-    grad = system.gradients(solution.temperature)
+    grad = system.gradients(solution.temperature if field is None else field)
     volume = system.layout.volume
     nmat = max(len(mesh.model.materials), 1)
     keys = tri * nmat + mesh.triangle_material[:, None]

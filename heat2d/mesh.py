@@ -129,7 +129,8 @@ def build_mesh(geometry: Geometry) -> Mesh:
 
 def refine_mesh(mesh: Mesh, max_area: np.ndarray) -> Mesh:
     """Refine a mesh where ``max_area`` (per triangle, length_unit²; ≤ 0 = no bound) asks,
-    keeping every graph segment, face and quality bound.
+    keeping every graph segment, face and quality bound; new vertices on a circle's
+    chords move onto the circle.
 
     Parameters
     ----------
@@ -142,7 +143,9 @@ def refine_mesh(mesh: Mesh, max_area: np.ndarray) -> Mesh:
     data = {key: raw[key] for key in ("vertices", "triangles", "segments", "segment_markers",
                                       "triangle_attributes")}
     data["triangle_max_area"] = np.where(max_area > 0, max_area, -1.0)
-    return _finish(mesh.geometry, _triangulate(mesh.geometry, data, "r"))
+    out = _triangulate(mesh.geometry, data, "r")
+    _snap_to_circles(mesh.geometry, out)
+    return _finish(mesh.geometry, out)
 
 
 def _triangulate(geometry: Geometry, data: dict, mode: str) -> dict:
@@ -308,10 +311,10 @@ def prolong(values: np.ndarray, coarse: Mesh, fine: Mesh) -> np.ndarray:
     return out
 
 
-def _onto_circles(mesh: Mesh, points: np.ndarray, ends: np.ndarray, n: int) -> None:
-    """Move the midpoints of circle chords (both ends on the circle, at most one outline
-    side apart) radially onto the circle, in place."""
-    geometry = mesh.geometry
+def _circle_chords(geometry: Geometry, a: np.ndarray, b: np.ndarray):
+    """For each circle shape: its centre, radius and which of the segments from points
+    ``a`` to ``b`` are chords of it (both ends on the circle, at most one outline side
+    apart)."""
     tol = geometry.tolerance
     for shape in geometry.model.shapes:
         if shape.circle is None:
@@ -319,14 +322,39 @@ def _onto_circles(mesh: Mesh, points: np.ndarray, ends: np.ndarray, n: int) -> N
         cx, cy, r = shape.circle
         local = shape.mesh_size / geometry.refine if shape.mesh_size else geometry.size
         sides = max(16, int(np.ceil(2 * np.pi * r / local)))
-        a, b = mesh.points[ends[:, 0]], mesh.points[ends[:, 1]]
         ra = np.hypot(a[:, 0] - cx, a[:, 1] - cy)
         rb = np.hypot(b[:, 0] - cx, b[:, 1] - cy)
         angle = np.abs(np.angle(((a[:, 0] - cx) + 1j * (a[:, 1] - cy))
                                 * np.conj((b[:, 0] - cx) + 1j * (b[:, 1] - cy))))
         chord = (np.abs(ra - r) <= tol) & (np.abs(rb - r) <= tol) \
             & (angle <= 2 * np.pi / sides * (1 + 1e-6))
-        m = points[n + np.flatnonzero(chord)]
-        d = np.hypot(m[:, 0] - cx, m[:, 1] - cy)
-        points[n + np.flatnonzero(chord)] = np.column_stack(
-            [cx + (m[:, 0] - cx) * r / d, cy + (m[:, 1] - cy) * r / d])
+        yield cx, cy, r, chord
+
+
+def _radially_onto(points: np.ndarray, index: np.ndarray, cx: float, cy: float,
+                   r: float) -> None:
+    m = points[index]
+    d = np.hypot(m[:, 0] - cx, m[:, 1] - cy)
+    points[index] = np.column_stack([cx + (m[:, 0] - cx) * r / d,
+                                     cy + (m[:, 1] - cy) * r / d])
+
+
+def _onto_circles(mesh: Mesh, points: np.ndarray, ends: np.ndarray, n: int) -> None:
+    """Move the midpoints of circle chords radially onto the circle, in place."""
+    a, b = mesh.points[ends[:, 0]], mesh.points[ends[:, 1]]
+    for cx, cy, r, chord in _circle_chords(mesh.geometry, a, b):
+        _radially_onto(points, n + np.flatnonzero(chord), cx, cy, r)
+
+
+def _snap_to_circles(geometry: Geometry, out: dict) -> None:
+    """Move the vertices the mesher put on circle chords onto the circle, in place, so
+    that an adaptively refined outline approaches its circle as its edges shrink (as
+    ``--refine`` and :func:`red_refine` do). A vertex moves by the sagitta of its
+    segment, L²/(8r), a few per cent of the triangles beside it."""
+    seg = out["segments"].astype(np.int64)
+    graph = geometry.segments[out["segment_markers"].ravel().astype(int) - 2]
+    a, b = geometry.vertices[graph[:, 0]], geometry.vertices[graph[:, 1]]
+    points = out["vertices"]
+    for cx, cy, r, chord in _circle_chords(geometry, a, b):
+        nodes = np.unique(seg[chord])
+        _radially_onto(points, nodes, cx, cy, r)
