@@ -208,11 +208,12 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     notes: list[str] = []
     if initial is not None and system.nonlinear:
         T[free] = initial[free]
-        R, J = system.residual_and_jacobian(T)
-        factor = Factor(chosen, J[free][:, free].tocsr())
+        _, J = system.residual_and_jacobian(T)
+        # One step (a check solve from a good guess) needs no ordering kept for later.
+        factor = Factor(chosen, J[free][:, free].tocsr(), keep_order=newton_steps != 1)
         T, residual, history, iterations = _newton(
             system, T, free, factor, tol, newton_steps or max_iterations,
-            fixed_steps=newton_steps is not None)
+            fixed_steps=newton_steps is not None, factored=True)
         return Solution(system, T, chosen, iterations, residual, time.perf_counter() - start,
                         (), tuple(history), factor, free)
     if factor is not None:
@@ -256,17 +257,18 @@ def _relative(A: sp.csr_matrix, x: np.ndarray, b: np.ndarray) -> float:
 
 
 def _newton(system: System, T: np.ndarray, free: np.ndarray, factor: Factor, tol: float,
-            max_iterations: int, *, fixed_steps: bool = False
+            max_iterations: int, *, fixed_steps: bool = False, factored: bool = False
             ) -> tuple[np.ndarray, float, list, int]:
-    """Newton on R(T) = K(T) T − F(T) = 0 at the free nodes, with step halving."""
+    """Newton on R(T) = K(T) T − F(T) = 0 at the free nodes, with step halving.
+    ``factored``: ``factor`` already holds the Jacobian at ``T``."""
     scale = max(np.abs(system.F).sum(), np.abs(system.K @ T).sum(), 1e-300)
     history = []
     total = factor.iterations
     R, J = system.residual_and_jacobian(T)
     norm = np.linalg.norm(R[free]) / scale
     for it in range(1, max_iterations + 1):
-        Jff = J[free][:, free].tocsr()
-        factor.update(Jff)
+        if not (factored and it == 1):
+            factor.update(J[free][:, free].tocsr())
         step = -factor(R[free])
         total += factor.iterations
         alpha = 1.0
