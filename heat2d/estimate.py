@@ -301,15 +301,22 @@ def estimate(result, others: list) -> dict[str, Any]:
     nodes = [r["nodes"] for r in meshes]
     values = [figures(r) for r in meshes]
     out: dict[str, Any] = {}
+    jumps = _gradient_jumps(result.solution)
+    own_corrections = probe_corrections(result.solution, jumps)
+    corrections = [own_corrections if r is own else r.get("probe_corrections", {})
+                   for r in meshes]
     for key in values[of]:
         est = grid_convergence([v[key] for v in values], nodes, of=of)
         out[key] = {"error": est.error, "order": est.order, "converging": est.converging}
-    # What the run's own mesh shows: each probe's interpolation correction and the rise
-    # a peak may have between nodes, as lower bounds of the errors.
-    jumps = _gradient_jumps(result.solution)
-    for name, c_h in probe_corrections(result.solution, jumps).items():
-        entry = out[f"probes.{name}"]
-        entry["error"] = max(entry["error"], CORRECTION_SAFETY * abs(c_h))
+        name = key[len("probes."):] if key.startswith("probes.") else None
+        if name is not None and all(name in c for c in corrections):
+            # As in nested(): the interpolation error with a margin, plus the index of the
+            # corrected values (non-nested meshes put a probe in a different place of its
+            # triangle on each, which scatters the plain values most).
+            corrected = grid_convergence([v[key] + c[name] for v, c in
+                                          zip(values, corrections, strict=True)], nodes, of=of)
+            out[key]["error"] = max(out[key]["error"], CORRECTION_SAFETY
+                                    * abs(own_corrections[name]) + corrected.error)
     out["temperature.max"]["error"] += peak_sampling(result.solution, jumps=jumps)
     for i, shape in enumerate(result.model.shapes):
         if f"shapes.{shape.name}.max" in out:

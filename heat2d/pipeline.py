@@ -135,7 +135,8 @@ def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
     for f in ladder(len(result.mesh.points)):
         coarse = build_mesh(build_geometry(model, refine=refine * f))
         solution = solve(assemble(coarse), method=method)
-        others.append({**brief_figures(solution), "nodes": len(coarse.points)})
+        others.append({**brief_figures(solution), "nodes": len(coarse.points),
+                       "probe_corrections": probe_corrections(solution)})
     annotate(result.summary, estimate(result, others))
     result.summary["warnings"].append(
         "error estimate from coarser, non-nested meshes (the run is too large to refine "
