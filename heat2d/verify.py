@@ -599,6 +599,50 @@ def case_manufactured() -> list[Record]:
     return out
 
 
+def case_error_estimate() -> list[Record]:
+    """The run's own ± must cover its true error: the plate of §4.2 on a coarse mesh,
+    with the default error estimate, at points away from nodes and near a singular
+    corner (where the top's temperature jumps)."""
+    import heat2d
+
+    name, source = "error_estimate", f"{INC} §4.2, Eq. 4.19"
+    side, t1, t2 = 10.0, 20.0, 120.0
+    points = {"centre": (5.0, 5.0), "near_top": (2.5, 8.0), "low": (7.3, 2.1),
+              "corner": (9.3, 9.1)}
+    text = f"""
+[model]
+length_unit = "mm"
+[materials.m]
+k = 10
+[[shape]]
+name = "plate"
+material = "m"
+rect = {{ x = 0, y = 0, width = {side}, height = {side} }}
+[[boundary]]
+name = "top"
+on = "plate.top"
+temperature = {t2}
+[[boundary]]
+name = "rest"
+on = "exterior"
+temperature = {t1}
+[mesh]
+size = 0.7
+""" + "".join(f'[[probe]]\nname = "{n}"\nat = [{x}, {y}]\n' for n, (x, y) in points.items())
+    r = heat2d.solve(heat2d.parse(text, source="verify"), resistances=False)
+    basis = "the run's own reported error (± of the default estimate) must cover the truth"
+    records = [check(name, f"T at ({x:g}, {y:g}) mm within its ±", source, "°C",
+                     t1 + (t2 - t1) * plate_series(x, y, side, side), r.summary["probes"][n],
+                     r.summary["probe_errors"][n], basis)
+               for n, (x, y) in points.items()]
+    # The mean is 1/4 of the way from T1 to T2 exactly (four rotated copies superpose to
+    # a plate with every side at T2).
+    plate = r.summary["shapes"]["plate"]
+    records.append(check(name, "mean θ* = 0.25 within its ±", source, "°C",
+                         t1 + 0.25 * (t2 - t1), plate["mean"], plate["mean_error"], basis))
+    return records
+
+
 CASES: dict[str, Callable[[], list[Record]]] = {
     "composite_wall": case_composite_wall,
     "generation_slab": case_generation_slab,
@@ -609,6 +653,7 @@ CASES: dict[str, Callable[[], list[Record]]] = {
     "kirchhoff_slab": case_kirchhoff_slab,
     "rod_generation": case_rod,
     "manufactured": case_manufactured,
+    "error_estimate": case_error_estimate,
 }
 """Verification cases by name; each returns its check records."""
 

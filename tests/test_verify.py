@@ -159,3 +159,21 @@ def test_closed_forms_reproduce_the_quoted_test_values():
     # RF #1 (Inc §3.1): one slab between two fluids, no contact: q″ = ΔT/(1/h1 + L/k + 1/h2).
     assert verify.composite_wall_flux(100.0, 10.0, [(0.1, 1.0)], 0.0, 10.0, 0.0) == \
         pytest.approx(100.0 / 0.3, rel=1e-15)
+
+
+def test_error_estimate_case_fails_when_the_estimate_is_too_small(monkeypatch):
+    # The case compares each figure with the run's own ± (Inc Eq. 4.19 as the truth); a
+    # tenth of the estimate must not pass, so the check can catch an over-confident one.
+    from heat2d import estimate
+
+    assert all(r["passed"] for r in verify.case_error_estimate())
+    real = estimate.nested
+
+    def shrunk(result, fine):
+        errors = real(result, fine)
+        for figure in errors["figures"].values():
+            figure["error"] /= 10
+        return errors
+
+    monkeypatch.setattr(estimate, "nested", shrunk)
+    assert not all(r["passed"] for r in verify.case_error_estimate())
