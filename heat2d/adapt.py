@@ -33,7 +33,7 @@ AREA_FACTOR = 0.3
 """Marked triangles get an area bound of this fraction of their area (about half the size)."""
 GROWTH = 4.0
 """Node count of the check mesh (the nested refinement) over the step's own: the budget
-bounds that one."""
+bounds that one (a mesh whose check would pass it is not used)."""
 
 
 def targets(result: Result) -> dict[str, float]:
@@ -66,6 +66,7 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
                          file=model.source, entry="[mesh]")
     steps: list[dict[str, Any]] = []
     reached = False
+    floor_reached = False
     while True:
         solution = solve(assemble(mesh), method=method)
         result = compute_results(solution, resistances=False)
@@ -80,19 +81,28 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
             "estimate": {k: errors["figures"][k]["error"] for k in goals}}
         reached = all(errors["figures"][k]["error"] <= v for k, v in goals.items())
         steps.append(step)
-        if reached or len(mesh.points) * GROWTH > budget:
+        if reached:
             break
         bounds = _area_bounds(mesh, goal_indicator(solution, goals, step["estimate"]))
         if not (bounds > 0).any():
-            break                               # nothing left that may be refined
-        mesh = refine_mesh(mesh, bounds)
+            floor_reached = True                # nothing left that may be refined
+            break
+        candidate = refine_mesh(mesh, bounds)
+        if len(candidate.points) * GROWTH > budget:
+            break                               # its check mesh would pass the budget
+        mesh = candidate
     final = compute_results(solution, resistances=resistances)
     annotate(final.summary, errors)
     final.summary["adaptive"] = {"targets": goals, "reached": reached, "steps": steps}
-    if not reached:
+    if not reached and floor_reached:
+        final.summary["warnings"].append(
+            "adaptive refinement stopped before reaching the requested accuracy: the "
+            "triangles where the error is are at the smallest size allowed (about "
+            f"{MIN_SIZE_FRACTION * 3:g} of [mesh] size); refine such a model with --refine")
+    elif not reached:
         final.summary["warnings"].append(
             f"adaptive refinement stopped at the node budget ({budget}) before reaching the "
-            "requested accuracy")
+            "requested accuracy: the next mesh's check (four times its nodes) would pass it")
     return final
 
 
@@ -145,6 +155,8 @@ def _area_bounds(mesh, contribution: np.ndarray) -> np.ndarray:
     ``contribution`` (largest first)."""
     floor = (MIN_SIZE_FRACTION * mesh.geometry.size) ** 2
     eta = np.where(mesh.areas > 4 * floor, contribution, 0.0)
+    if not eta.any():
+        return np.full(len(eta), -1.0)
     order = np.argsort(-eta)
     share = np.cumsum(eta[order]) / max(eta.sum(), 1e-300)
     count = max(int(np.searchsorted(share, MARK_SHARE)) + 1,

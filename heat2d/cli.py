@@ -188,7 +188,8 @@ def build_parser() -> argparse.ArgumentParser:
             p.add_argument("--show-mesh", action="store_true",
                            help="draw the mesh on the PNG temperature map")
             p.add_argument("--no-estimate", action="store_true",
-                           help="skip the discretization error estimate (two extra solves)")
+                           help="skip the discretization error estimate (an extra solve on the "
+                           "refined mesh)")
             p.add_argument("--strict", action="store_true",
                            help="exit with status 3 when a shape exceeds its max_temperature")
     return parser

@@ -59,8 +59,9 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
     resistances
         Compute the °C/W matrix of the powered shapes.
     estimate
-        Estimate the discretization error of every reported figure by solving on a
-        refined and a coarser mesh (see :mod:`heat2d.estimate`).
+        Estimate the discretization error of every reported figure by solving on the
+        nested refinement of the mesh (above ``estimate.REFINED_LIMIT`` nodes, on two
+        coarser meshes instead; see :mod:`heat2d.estimate`).
     adaptive
         Refine adaptively when the model asks for an accuracy (see :mod:`heat2d.adapt`).
 

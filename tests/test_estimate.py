@@ -736,6 +736,23 @@ def test_adaptive_accuracy_on_the_maximum(name, target):
           f"{r.summary['mesh']['nodes']} nodes until its reported error meets the target")
 
 
+def test_adaptive_stops_within_the_node_budget_and_says_so():
+    # The hot pin asking 0.001 K with a budget of 8000 nodes: each step's check mesh has
+    # four times its nodes, so no mesh past 2000 nodes is used, the target is not met,
+    # and the summary says why.
+    text = PIN.replace("ACCURACY", "accuracy = 0.001").replace(
+        "[mesh]\nsize = 1.0\n", "[mesh]\nsize = 1.0\nmax_nodes = 8000\n")
+    result = heat2d.solve(heat2d.parse(text))
+    adaptive = result.summary["adaptive"]
+    assert adaptive["reached"] is False
+    assert len(adaptive["steps"]) > 1
+    assert all(4 * step["nodes"] <= 8000 for step in adaptive["steps"])
+    assert any("stopped at the node budget (8000)" in w for w in result.summary["warnings"])
+    # What is reported is the last mesh's own estimate, still honest.
+    true = abs(result.summary["probes"]["near_pin"] - PIN_EXACT)
+    assert true <= result.summary["probe_errors"]["near_pin"]
+
+
 # Where the boundary data jump (20 to 120 °C at the top corners) the indicator never
 # falls; refinement stops at a floor of 1e-3 of the target size (adapt.MIN_SIZE_FRACTION)
 # instead of refining the corners to zero-area triangles.
