@@ -13,6 +13,7 @@ interpolation correction, estimate.probe_corrections) for comparison.
 
     python benchmarks/estimate_coverage.py                  # seeds 1 2, 40 probes, 7 meshes
     python benchmarks/estimate_coverage.py --seeds 5 6 --plain
+    python benchmarks/estimate_coverage.py --large --seeds 5      # large runs
 
 Figures exact to round-off (1-D heat flows, held temperatures) are left out of the
 ratios (their estimate is round-off too).
@@ -34,13 +35,20 @@ from test_estimate import SCATTER, comparisons, scattered_runs  # noqa: E402
 
 from heat2d import adapt, estimate  # noqa: E402
 
+LARGE = {  # one mesh per problem above estimate.REFINED_LIMIT: √2 steps from SCATTER
+    "generation_slab": 9, "cylinder_wall": 11, "corner": 9, "pipe_wall": 11, "plate": 10,
+}
 
-def measure(names, seeds, probes, meshes) -> list[tuple]:
+
+def measure(names, seeds, probes, meshes, large=False) -> list[tuple]:
     rows = []
     for name in names:
+        if large and name not in LARGE:
+            continue
         true, reported, nodes = [], [], []
         for seed in seeds:
-            sizes = [SCATTER[name] * 2 ** (-j / 2) for j in range(meshes)]
+            sizes = ([SCATTER[name] * 2 ** (-LARGE[name] / 2)] if large else
+                     [SCATTER[name] * 2 ** (-j / 2) for j in range(meshes)])
             with pytest.MonkeyPatch.context() as mp:
                 for result, exact in scattered_runs(name, sizes, probes, seed, mp):
                     nodes.append(result.summary["mesh"]["nodes"])
@@ -77,8 +85,16 @@ def main() -> None:
     parser.add_argument("--only", nargs="+", choices=list(SCATTER), default=list(SCATTER))
     parser.add_argument("--plain", action="store_true",
                         help="also the plain Richardson term without probe corrections")
+    parser.add_argument("--large", action="store_true",
+                        help="instead, one mesh of 31 000 to 168 000 nodes per problem (the "
+                             "coarse-ladder estimate of large runs); a few minutes")
     args = parser.parse_args()
     start = time.perf_counter()
+    if args.large:
+        show(f"large runs (coarse ladder), seeds {args.seeds}, {args.probes} random probes",
+             measure(args.only, args.seeds, args.probes, 1, large=True))
+        print(f"\n{time.perf_counter() - start:.0f} s")
+        return
     show(f"default estimate, seeds {args.seeds}, {args.probes} random probes, "
          f"{args.meshes} meshes each",
          measure(args.only, args.seeds, args.probes, args.meshes))
