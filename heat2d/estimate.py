@@ -349,3 +349,24 @@ def annotate(summary: dict[str, Any], errors: dict[str, Any]) -> None:
             shape["mean_error"] = fig[f"shapes.{name}.mean"]["error"]
     for name, b in summary["boundaries"].items():
         b["heat_out_error_w"] = fig[f"boundaries.{name}.heat_out_w"]["error"]
+    shapes = summary["shapes"]
+    for group in summary.get("groups", {}).values():
+        seen = [shapes[m] for m in group["members"]
+                if m in shapes and shapes[m].get("max_error") is not None]
+        if group["max"] is None or not seen:
+            continue
+        # The group's max is its hottest member's; its mean a volume-weighted mean, whose
+        # error is at most the same mean of the members' errors.
+        group["max_error"] = max(m["max_error"] for m in seen if m["max"] == group["max"])
+        volume = sum(m["volume_m3"] for m in seen)
+        group["mean_error"] = sum(m["mean_error"] * m["volume_m3"] for m in seen) / volume
+    for name, limit in summary.get("limits", {}).items():
+        error = shapes[name].get("max_error")
+        if error is None:
+            continue
+        limit["margin_error"] = error
+        if abs(limit["margin"]) <= error:
+            summary["warnings"].append(
+                f'shape "{name}": the margin to its max_temperature ({limit["margin"]:.3g} K) '
+                f"is within the max's estimated error (± {error:.2g} K): refine the mesh "
+                "before relying on the pass or fail")

@@ -157,11 +157,12 @@ def format_summary(summary: dict) -> str:
         lines.append(f"{name:<20} {label:<16} {_fmt(s['min']):>9} {mean:>16} {top:>16} "
                      f"{s['power_w']:>10.4g}")
     if summary["limits"]:
-        lines += ["", f"{'limit':<20} {'max °C':>9} {'limit °C':>9} {'margin K':>9}"]
+        lines += ["", f"{'limit':<20} {'max °C':>9} {'limit °C':>9} {'margin K':>16}"]
         for name, lim in summary["limits"].items():
             flag = "  EXCEEDED" if lim["exceeded"] else ""
+            margin = f"{lim['margin']:.2f}{_pm(lim.get('margin_error'))}"
             lines.append(f"{name:<20} {lim['max']:>9.2f} {lim['limit']:>9.2f} "
-                         f"{lim['margin']:>9.2f}{flag}")
+                         f"{margin:>16}{flag}")
     lines += ["", f"{'boundary':<20} {'kind':<21} {'heat out W':>20} {'share':>7} "
               f"{'mean °C':>9} {'length ' + unit:>11}"]
     total_out = sum(max(b["heat_out_w"], 0.0) for b in summary["boundaries"].values())

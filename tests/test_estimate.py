@@ -822,3 +822,61 @@ def test_cli_node_budget_below_the_initial_mesh_exits_2_with_one_line(tmp_path, 
         r"error: .*plate\.toml: \[mesh\]: max_nodes: the budget 500 is smaller than the "
         r"initial mesh \(\d+ nodes\).*", err[0])
     assert not out.exists()
+
+
+# ---------------------------------------------------------------------------------------
+# Errors carried to groups and limit margins (bookkeeping of annotate)
+
+THREE = """
+[model]
+length_unit = "mm"
+depth = 20
+[materials.al]
+k = 209
+[materials.alumina]
+k = 24
+[[shape]]
+name = "bracket"
+material = "al"
+rect = { x = 0, y = 0, width = 60, height = 3 }
+[[shape]]
+name = "resistor"
+material = "alumina"
+rect = { x = 18, y = 3, width = 6, height = 1 }
+repeat = { count = 3, dx = 14 }
+power = 2
+max_temperature = LIMIT
+[[boundary]]
+name = "mount"
+on = "bracket.left"
+temperature = 50
+[[boundary]]
+name = "air"
+on = "exterior"
+h = 10
+ambient = 40
+[mesh]
+size = 1.0
+"""
+
+
+def test_groups_and_limit_margins_carry_the_error_of_their_shapes():
+    result = heat2d.solve(heat2d.parse(THREE.replace("LIMIT", "85")))
+    s = result.summary
+    members = [s["shapes"][f"resistor[{i}]"] for i in (1, 2, 3)]
+    group = s["groups"]["resistor"]
+    hottest = max(members, key=lambda m: m["max"])
+    assert group["max"] == hottest["max"] and group["max_error"] == hottest["max_error"]
+    volume = sum(m["volume_m3"] for m in members)
+    assert group["mean_error"] == pytest.approx(
+        sum(m["mean_error"] * m["volume_m3"] for m in members) / volume, rel=1e-12)
+    for i, m in enumerate(members, 1):
+        assert s["limits"][f"resistor[{i}]"]["margin_error"] == m["max_error"] > 0
+    assert not any("within the max's estimated error" in w for w in s["warnings"])
+    # A limit set inside the hottest copy's ± of its max: pass or fail is not resolved,
+    # and the summary says so for that copy only.
+    top = max(range(3), key=lambda i: members[i]["max"]) + 1
+    limit = hottest["max"] + 0.5 * hottest["max_error"]
+    close = heat2d.solve(heat2d.parse(THREE.replace("LIMIT", repr(limit))))
+    flagged = [w for w in close.summary["warnings"] if "within the max's estimated error" in w]
+    assert len(flagged) == 1 and f'"resistor[{top}]"' in flagged[0]
