@@ -81,10 +81,11 @@ class Estimate:
     converging: bool
 
 
-def recovery_indicator(solution, field: np.ndarray | None = None
-                       ) -> tuple[np.ndarray, float, float]:
+def recovery_indicator(solution, field: np.ndarray | None = None,
+                       jumps: np.ndarray | None = None) -> tuple[np.ndarray, float, float]:
     """Zienkiewicz–Zhu indicator per triangle, of the solution or of another nodal
-    ``field`` on its mesh (weighted by the solution's conductivity).
+    ``field`` on its mesh (weighted by the solution's conductivity); ``jumps`` are
+    :func:`_gradient_jumps` of the same field, if already known.
 
     Returns
     -------
@@ -97,7 +98,7 @@ def recovery_indicator(solution, field: np.ndarray | None = None
     """
     system = solution.system
     T = solution.temperature if field is None else field
-    diff = _gradient_jumps(solution, field)
+    diff = _gradient_jumps(solution, field) if jumps is None else jumps
     volume = system.layout.volume
     kx, ky, _, _ = system.conductivity(solution.temperature)
     # ∫ (Σ φ_i e_i)² dV = V/6 (Σ e_i² + (Σ e_i)²) per component, V = ∫ dV (planar exact)
@@ -120,13 +121,18 @@ def _gradient_jumps(solution, field: np.ndarray | None = None) -> np.ndarray:
     m = len(tri)
     grad = system.gradients(solution.temperature if field is None else field)
     volume = system.layout.volume
-    nmat = max(len(mesh.model.materials), 1)
-    keys = tri * nmat + mesh.triangle_material[:, None]
-    unique, inverse = np.unique(keys.ravel(), return_inverse=True)
-    inverse = inverse.ravel()
-    weight = np.bincount(inverse, np.repeat(volume, 3), minlength=len(unique))
+    # The (node, material) group of each triangle corner depends on the mesh and its
+    # materials only: found once per mesh (variants that rebind it may change materials).
+    key = ("recovery groups", hash(mesh.triangle_material.tobytes()))
+    if key not in mesh.cache:
+        nmat = max(len(mesh.model.materials), 1)
+        keys = tri * nmat + mesh.triangle_material[:, None]
+        unique, inverse = np.unique(keys.ravel(), return_inverse=True)
+        mesh.cache[key] = (inverse.ravel(), len(unique))
+    inverse, groups = mesh.cache[key]
+    weight = np.bincount(inverse, np.repeat(volume, 3), minlength=groups)
     recovered = np.column_stack([
-        np.bincount(inverse, np.repeat(volume * grad[:, d], 3), minlength=len(unique))
+        np.bincount(inverse, np.repeat(volume * grad[:, d], 3), minlength=groups)
         for d in range(2)]) / weight[:, None]
     return recovered[inverse].reshape(m, 3, 2) - grad[:, None, :]
 
@@ -146,8 +152,8 @@ def peak_sampling(solution, shape: int | None = None, jumps: np.ndarray | None =
               else mesh.triangle_shape == shape)
     if not inside.any():
         return 0.0
-    nodes = np.unique(mesh.triangles[inside])
-    node = int(nodes[np.argmax(T[nodes])])
+    corners = mesh.triangles[inside].ravel()
+    node = int(corners[np.argmax(T[corners])])
     if np.isin(node, solution.system.fixed):
         return 0.0                      # the hottest point is held: it has no error
     around = np.flatnonzero((mesh.triangles == node).any(axis=1) & inside)
@@ -224,7 +230,7 @@ def nested(result, fine: dict[str, Any]) -> dict[str, Any]:
         if f"shapes.{shape.name}.max" in out:
             out[f"shapes.{shape.name}.max"]["error"] += peak_sampling(result.solution, i,
                                                                       jumps)
-    _, total, relative = recovery_indicator(result.solution)
+    _, total, relative = recovery_indicator(result.solution, jumps=jumps)
     return {"method": "Richardson extrapolation against a nested refinement (each triangle "
                       "split in four), order assumed 1, safety factor 2; probes also with "
                       "their interpolation corrected by recovered gradients, maxima with "
@@ -327,7 +333,7 @@ def estimate(result, others: list) -> dict[str, Any]:
         if f"shapes.{shape.name}.max" in out:
             out[f"shapes.{shape.name}.max"]["error"] += peak_sampling(result.solution, i,
                                                                       jumps)
-    _, total, relative = recovery_indicator(result.solution)
+    _, total, relative = recovery_indicator(result.solution, jumps=jumps)
     return {"method": "grid convergence index over three non-nested meshes (Richardson "
                       "extrapolation with the observed order); less reliable: point values "
                       "of non-nested meshes scatter; Zienkiewicz-Zhu recovery indicator for "
