@@ -25,6 +25,10 @@ from .solver import solve
 
 MARK_SHARE = 0.5
 """Dörfler parameter: refine the fewest triangles that carry this share of Σ η²."""
+STALL_STEPS = 3
+STALL_GAIN = 0.05
+"""Refinement stops when the worst target's estimate over its accuracy has fallen by less
+than STALL_GAIN over the last STALL_STEPS steps (each step normally halves it or so)."""
 MIN_MARKED = 0.1
 """At least this fraction of the triangles is refined per step: a goal-oriented indicator
 can be so concentrated that half of it sits in a handful of triangles, and every step
@@ -48,6 +52,15 @@ def targets(result: Result) -> dict[str, float]:
     return out
 
 
+def check_budget(mesh) -> None:
+    """Raise ModelError when an adaptive model's node budget cannot hold its first mesh."""
+    model = mesh.model
+    if model.adaptive and len(mesh.points) > model.mesh.max_nodes:
+        raise ModelError(f"max_nodes: the budget {model.mesh.max_nodes} is smaller than the "
+                         f"initial mesh ({len(mesh.points)} nodes); raise it or coarsen "
+                         "[mesh] size", file=model.source, entry="[mesh]")
+
+
 def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
           ) -> Result:
     """Refine until the target figures meet their accuracy or the node budget is spent.
@@ -60,13 +73,10 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
     model = geometry.model
     budget = model.mesh.max_nodes
     mesh = build_mesh(geometry)
-    if len(mesh.points) > budget:
-        raise ModelError(f"max_nodes: the budget {budget} is smaller than the initial mesh "
-                         f"({len(mesh.points)} nodes); raise it or coarsen [mesh] size",
-                         file=model.source, entry="[mesh]")
+    check_budget(mesh)
     steps: list[dict[str, Any]] = []
     reached = False
-    floor_reached = False
+    floor_reached = stalled = False
     while True:
         solution = solve(assemble(mesh), method=method)
         result = compute_results(solution, resistances=False)
@@ -83,6 +93,10 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         steps.append(step)
         if reached:
             break
+        worst = [max(s["estimate"][k] / v for k, v in goals.items()) for s in steps]
+        if len(worst) > STALL_STEPS and worst[-1] > (1 - STALL_GAIN) * worst[-1 - STALL_STEPS]:
+            stalled = True                      # the estimate no longer falls
+            break
         bounds = _area_bounds(mesh, goal_indicator(solution, goals, step["estimate"]))
         if not (bounds > 0).any():
             floor_reached = True                # nothing left that may be refined
@@ -93,8 +107,17 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         mesh = candidate
     final = compute_results(solution, resistances=resistances)
     annotate(final.summary, errors)
-    final.summary["adaptive"] = {"targets": goals, "reached": reached, "steps": steps}
-    if not reached and floor_reached:
+    stop = ("reached" if reached else "stalled" if stalled else
+            "smallest size" if floor_reached else "node budget")
+    final.summary["adaptive"] = {"targets": goals, "reached": reached, "stopped": stop,
+                                 "steps": steps}
+    if not reached and stalled:
+        final.summary["warnings"].append(
+            f"adaptive refinement stopped before reaching the requested accuracy: the "
+            f"estimate fell by less than {STALL_GAIN:.0%} over the last {STALL_STEPS} steps "
+            "(a singular point, such as two held temperatures meeting, that refinement "
+            "cannot resolve?)")
+    elif not reached and floor_reached:
         final.summary["warnings"].append(
             "adaptive refinement stopped before reaching the requested accuracy: the "
             "triangles where the error is are at the smallest size allowed (about "
@@ -129,6 +152,7 @@ def goal_indicator(solution, goals: dict[str, float],
     eta, _, _ = recovery_indicator(solution)
     mesh, free = solution.mesh, solution.free
     total = np.zeros(len(mesh.triangles))
+    tightest = min(goals.values(), default=1.0)
     for key, accuracy in goals.items():
         load = np.zeros(len(mesh.points))
         if key == "temperature.max":
@@ -146,7 +170,7 @@ def goal_indicator(solution, goals: dict[str, float],
         z = np.zeros(len(mesh.points))
         z[free] = solution.factor(load[free])
         eta_z, _, _ = recovery_indicator(solution, z)
-        total += eta * eta_z / accuracy
+        total += eta * eta_z * (tightest / accuracy)      # relative weights: no overflow
     return total if total.any() else eta**2
 
 

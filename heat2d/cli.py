@@ -91,6 +91,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
+    from .adapt import check_budget
     from .geometry import build_geometry
     from .mesh import build_mesh
     from .model import load
@@ -98,6 +99,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     model = load(args.model, params=_parse_sets(args.set))
     geometry = build_geometry(model, refine=args.refine)
     mesh = build_mesh(geometry)
+    check_budget(mesh)
     unit = model.length_unit
     areas = geometry.visible_area
     claimed = geometry.claimed_length()

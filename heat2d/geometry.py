@@ -112,14 +112,7 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
             else extent * DEFAULT_SIZE_FRACTION) / refine
     polys = [_polygon(model, s, size, grid, refine) for s in model.shapes]
 
-    # Painting: what later shapes leave of each shape.
-    visible = [None] * len(polys)
-    covered = Polygon()
-    for i in range(len(polys) - 1, -1, -1):
-        visible[i] = shapely.difference(polys[i], covered, grid_size=grid)
-        covered = shapely.union(covered, polys[i], grid_size=grid)
-    solid = [v for s, v in zip(model.shapes, visible, strict=True) if not s.void]
-    body = shapely.union_all(solid, grid_size=grid)
+    visible, body = _paint(model, polys, grid)
     if body.is_empty or body.area <= 0:
         raise GeometryError("no solid material is left after voids and covering shapes",
                             file=model.source, entry="[[shape]]")
@@ -172,7 +165,7 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
     warnings = _exterior_voids(model, polys, claims, a, b, mid, tol)
     interface = _interfaces(model, visible, exposed, a, b, mid, tol)
 
-    _check_probes(model, body, tol)
+    _check_probes(model, body, tol, grid)
     for s, v in zip(model.shapes, visible, strict=True):
         if not s.void and v.area <= 0:
             powered = " and its power is lost" if (s.power or s.power_density) else ""
@@ -238,12 +231,44 @@ def _split_at(starts: np.ndarray, ends: np.ndarray, cuts: np.ndarray, tol: float
     return np.vstack(new_starts), np.vstack(new_ends)
 
 
-def _check_probes(model: Model, body: shapely.Geometry, tol: float) -> None:
+def _paint(model: Model, polys: list, grid: float) -> tuple[list, shapely.Geometry]:
+    """What later shapes leave of each shape, and the solid body (voids taken out)."""
+    visible = [None] * len(polys)
+    covered = Polygon()
+    for i in range(len(polys) - 1, -1, -1):
+        visible[i] = shapely.difference(polys[i], covered, grid_size=grid)
+        covered = shapely.union(covered, polys[i], grid_size=grid)
+    solid = [v for s, v in zip(model.shapes, visible, strict=True) if not s.void]
+    return visible, shapely.union_all(solid, grid_size=grid)
+
+
+EXACT_CIRCLE_SIDES = 2048
+"""Circles are drawn with this many sides to check probes against the true outline."""
+
+
+def _check_probes(model: Model, body: shapely.Geometry, tol: float, grid: float) -> None:
+    """Every probe must lie in the body as drawn with true circles (not their polygons,
+    which change with the mesh size): a probe in the sliver between a circle and its
+    polygon is then valid on every mesh (results.probe_weights moves it onto the mesh),
+    and one inside a void circle invalid on every mesh."""
+    circles = [s.circle for s in model.shapes if s.circle is not None]
+    if circles and model.probes:
+        polys = [shapely.set_precision(Polygon(
+            shape_outline(s, 2 * math.pi * s.circle[2] / EXACT_CIRCLE_SIDES)
+            if s.circle is not None else s.points), grid) for s in model.shapes]
+        body = _paint(model, polys, grid)[1]
+        tol += max(r for _, _, r in circles) * (1 - math.cos(math.pi / EXACT_CIRCLE_SIDES))
     for probe in model.probes:
         if not shapely.dwithin(body, shapely.Point(probe.x, probe.y), tol):
             raise GeometryError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body "
                                 "(outside every shape, or in a void)", file=model.source,
                                 entry=f"probe \"{probe.name}\"", line=probe.line)
+
+
+def circle_sides(geometry: Geometry, shape: Shape) -> int:
+    """Number of sides of a circle shape's polygon in this geometry."""
+    local = shape.mesh_size / geometry.refine if shape.mesh_size else geometry.size
+    return max(MIN_CIRCLE_SEGMENTS, math.ceil(2 * math.pi * shape.circle[2] / local))
 
 
 def shape_outline(shape: Shape, size: float) -> np.ndarray:

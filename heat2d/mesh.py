@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import MeshError
-from .geometry import Geometry
+from .geometry import Geometry, circle_sides
 
 EQUILATERAL_AREA = np.sqrt(3.0) / 4.0
 """Area of an equilateral triangle of unit side: target size h -> area bound."""
@@ -320,8 +320,7 @@ def _circle_chords(geometry: Geometry, a: np.ndarray, b: np.ndarray):
         if shape.circle is None:
             continue
         cx, cy, r = shape.circle
-        local = shape.mesh_size / geometry.refine if shape.mesh_size else geometry.size
-        sides = max(16, int(np.ceil(2 * np.pi * r / local)))
+        sides = circle_sides(geometry, shape)
         ra = np.hypot(a[:, 0] - cx, a[:, 1] - cy)
         rb = np.hypot(b[:, 0] - cx, b[:, 1] - cy)
         angle = np.abs(np.angle(((a[:, 0] - cx) + 1j * (a[:, 1] - cy))

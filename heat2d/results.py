@@ -15,6 +15,7 @@ import numpy as np
 
 from . import __version__
 from .errors import ModelError
+from .geometry import circle_sides
 from .solver import Solution
 
 CAUTION = (
@@ -73,7 +74,7 @@ class Result:
     def temperature_at(self, x: float, y: float) -> float:
         """Temperature (°C) at a point of the body, interpolated linearly in its triangle."""
         tri, bary = locate(self.mesh.points, self.mesh.triangles, x, y,
-                           self.mesh.geometry.tolerance)
+                           self.mesh.geometry.tolerance, self.mesh.triangle_shape)
         if tri < 0:
             raise ValueError(f"point ({x:g}, {y:g}) is not in the body")
         return float(bary @ self.temperature[self.mesh.triangles[tri]])
@@ -87,8 +88,13 @@ class Result:
 
 
 def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
-           tol: float = 0.0) -> tuple[int, np.ndarray]:
-    """The triangle holding (x, y) and the point's barycentric coordinates; -1 if outside."""
+           tol: float = 0.0, rank: np.ndarray | None = None) -> tuple[int, np.ndarray]:
+    """The triangle holding (x, y) and the point's barycentric coordinates; -1 if outside.
+
+    A point on an edge (to within ``tol``) is in the triangles on both sides; ``rank``
+    (per triangle) picks the highest among them, so that a point on a line where the
+    field jumps (a contact interface) reads the same side on every mesh.
+    """
     p = points[triangles]
     d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
     det = d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]
@@ -97,20 +103,53 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     l2 = (d1[:, 0] * ry - d1[:, 1] * rx) / det
     lam = np.column_stack([1 - l1 - l2, l1, l2])
     worst = lam.min(axis=1)
-    best = int(np.argmax(worst))
     # Allow points on an edge to within the geometry tolerance (relative to the triangle size).
-    size = np.sqrt(np.abs(det[best]))
-    if worst[best] < -max(tol / size, 1e-12):
+    inside = np.flatnonzero(worst >= -np.maximum(tol / np.sqrt(np.abs(det)), 1e-12))
+    if len(inside) == 0:
+        best = int(np.argmax(worst))
         return -1, lam[best]
+    if rank is None:
+        best = int(inside[np.argmax(worst[inside])])
+    else:
+        best = int(inside[np.lexsort((worst[inside], rank[inside]))[-1]])
     bary = np.clip(lam[best], 0.0, None)
     return best, bary / bary.sum()
+
+
+def _onto_outline(mesh, x: float, y: float) -> tuple[float, float] | None:
+    """The nearest point of the mesh's outline, if (x, y) lies within the sliver between
+    a circle and its polygon (a probe there is valid: geometry checks probes against
+    the true circles); else None."""
+    geometry = mesh.geometry
+    allowance = 0.0
+    for shape in mesh.model.shapes:
+        if shape.circle is not None:
+            sides = circle_sides(geometry, shape)
+            allowance = max(allowance, shape.circle[2] * (1 - np.cos(np.pi / sides)))
+    edges = np.vstack([mesh.edges, mesh.interface_a, mesh.interface_b])
+    if allowance == 0.0 or len(edges) == 0:
+        return None
+    a, b = mesh.points[edges[:, 0]], mesh.points[edges[:, 1]]
+    d = b - a
+    t = np.clip(((x - a[:, 0]) * d[:, 0] + (y - a[:, 1]) * d[:, 1])
+                / np.maximum((d**2).sum(axis=1), 1e-300), 0.0, 1.0)
+    near = a + t[:, None] * d
+    dist = np.hypot(near[:, 0] - x, near[:, 1] - y)
+    k = int(np.argmin(dist))
+    if dist[k] > allowance + geometry.tolerance:
+        return None
+    return float(near[k, 0]), float(near[k, 1])
 
 
 def probe_weights(mesh, x: float, y: float) -> tuple[int, np.ndarray]:
     """:func:`locate` for a probe, remembered in the mesh's cache (variants share it)."""
     key = ("probe", x, y)
     if key not in mesh.cache:
-        mesh.cache[key] = locate(mesh.points, mesh.triangles, x, y, mesh.geometry.tolerance)
+        tol, rank = mesh.geometry.tolerance, mesh.triangle_shape
+        found = locate(mesh.points, mesh.triangles, x, y, tol, rank)
+        if found[0] < 0 and (moved := _onto_outline(mesh, x, y)) is not None:
+            found = locate(mesh.points, mesh.triangles, *moved, tol, rank)
+        mesh.cache[key] = found
     return mesh.cache[key]
 
 
@@ -327,7 +366,10 @@ def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float]
     heat_out = float(heat[:nb].sum()) + flux_in       # leaving by convection, radiation, fixed
     gross_in = generated + sum(max(-heat[i], 0.0) for i in range(nb))
     gross_out = sum(max(heat[i], 0.0) for i in range(nb))
-    scale = max(gross_in, gross_out)
+    # Reactions are differences of terms as large as Σ|K_ij||T_j| at the fixed nodes: their
+    # round-off, relative to that, must not count as imbalance in a model with no power.
+    terms = float((abs(system.K) @ np.abs(T))[system.fixed].sum())
+    scale = max(gross_in, gross_out, 1e-8 * terms)
     power_in = generated + flux_in
     balance = {"power_in_w": power_in, "generated_w": generated, "heat_flux_in_w": flux_in,
                "heat_out_w": heat_out,

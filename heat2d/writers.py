@@ -225,11 +225,14 @@ def _adaptive_lines(adaptive: dict) -> list[str]:
     asked = ", ".join(f"{n} ± {adaptive['targets'][k]:.3g} K" for n, k in zip(names, keys,
                                                                             strict=True))
     steps = adaptive["steps"]
-    state = "reached" if adaptive["reached"] else "NOT reached (node budget)"
+    state = ("reached" if adaptive["reached"] else
+             f"NOT reached ({adaptive.get('stopped', 'node budget')})")
+    widths = [max(12, len(n) + 2) for n in names]
     lines = [f"Adaptive        {asked}: {state} after {len(steps)} mesh(es)",
              f"  {'step':>4} {'nodes':>8} {'max °C':>10}"
-             + "".join(f" {'± ' + n[:10]:>12}" for n in names)]
+             + "".join(f" {'± ' + n:>{w}}" for n, w in zip(names, widths, strict=True))]
     for i, step in enumerate(steps, 1):
         lines.append(f"  {i:>4} {step['nodes']:>8} {step['max_temperature']:>10.3f}"
-                     + "".join(f" {step['estimate'][k]:>12.2g}" for k in keys))
+                     + "".join(f" {step['estimate'][k]:>{w}.2g}"
+                               for k, w in zip(keys, widths, strict=True)))
     return lines

@@ -822,6 +822,10 @@ def test_cli_node_budget_below_the_initial_mesh_exits_2_with_one_line(tmp_path, 
         r"error: .*plate\.toml: \[mesh\]: max_nodes: the budget 500 is smaller than the "
         r"initial mesh \(\d+ nodes\).*", err[0])
     assert not out.exists()
+    # `heat2d check` meshes the model too, and refuses the budget with the same line.
+    status = cli.main(["check", str(tmp_path / "plate.toml")])
+    check_err = capsys.readouterr().err.strip().splitlines()
+    assert status == 2 and check_err == err
 
 
 # ---------------------------------------------------------------------------------------
