@@ -29,10 +29,13 @@ STALL_STEPS = 3
 STALL_GAIN = 0.05
 """Refinement stops when the worst target's estimate over its accuracy has fallen by less
 than STALL_GAIN over the last STALL_STEPS steps (each step normally halves it or so)."""
-MIN_MARKED = 0.1
+MIN_MARKED = 0.05
 """At least this fraction of the triangles is refined per step: a goal-oriented indicator
 can be so concentrated that half of it sits in a handful of triangles, and every step
-costs a solve and a check solve."""
+costs a solve and a check solve. Measured on eight adaptive runs (the hot pin, two corner
+probes, the rod, the slab, the plate's top probe, the bundled control board and the
+worked example), 0, 0.02, 0.03, 0.05 and 0.1 changed the final node counts by up to 7×
+case by case with no trend; 0.05 had the smallest total relative to the best of each."""
 AREA_FACTOR = 0.3
 """Marked triangles get an area bound of this fraction of their area (about half the size)."""
 GROWTH = 4.0
