@@ -119,7 +119,8 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
 def _onto_outline(mesh, x: float, y: float) -> tuple[float, float] | None:
     """The nearest point of the mesh's outline, if (x, y) lies within the sliver between
     a circle and its polygon (a probe there is valid: geometry checks probes against
-    the true circles); else None."""
+    the true circles); else None. :func:`probe_weights` reads such a probe from the
+    triangle there, extended linearly."""
     geometry = mesh.geometry
     allowance = 0.0
     for shape in mesh.model.shapes:
@@ -148,7 +149,15 @@ def probe_weights(mesh, x: float, y: float) -> tuple[int, np.ndarray]:
         tol, rank = mesh.geometry.tolerance, mesh.triangle_shape
         found = locate(mesh.points, mesh.triangles, x, y, tol, rank)
         if found[0] < 0 and (moved := _onto_outline(mesh, x, y)) is not None:
-            found = locate(mesh.points, mesh.triangles, *moved, tol, rank)
+            # The triangle at the nearest outline point, its linear field extended to the
+            # probe (the sliver is a few per cent of that triangle's size).
+            k = locate(mesh.points, mesh.triangles, *moved, tol, rank)[0]
+            if k >= 0:
+                (ax, ay), (bx, by), (cx, cy) = mesh.points[mesh.triangles[k]]
+                det = (bx - ax) * (cy - ay) - (by - ay) * (cx - ax)
+                l1 = ((x - ax) * (cy - ay) - (y - ay) * (cx - ax)) / det
+                l2 = ((bx - ax) * (y - ay) - (by - ay) * (x - ax)) / det
+                found = (k, np.array([1 - l1 - l2, l1, l2]))
         mesh.cache[key] = found
     return mesh.cache[key]
 

@@ -640,6 +640,11 @@ size = 0.7
     plate = r.summary["shapes"]["plate"]
     records.append(check(name, "mean θ* = 0.25 within its ±", source, "°C",
                          t1 + 0.25 * (t2 - t1), plate["mean"], plate["mean_error"], basis))
+    # A ± too large to say anything would pass the checks above: the centre's must also
+    # be small against the field (O(h²) puts it near 0.2 % of T2 − T1 on this mesh).
+    records.append(check(name, "± at the centre below 1 % of T2 − T1", source, "K", 0.0,
+                         r.summary["probe_errors"]["centre"], 0.01 * (t2 - t1),
+                         "an estimate must be informative as well as cover the truth"))
     return records
 
 

@@ -67,11 +67,14 @@ def test_a_probe_on_an_interface_reads_the_later_shape_on_every_mesh():
 
 
 def _circle_model(probe: tuple[float, float], *, void: bool, accuracy: str = "") -> str:
-    # A 10 mm square plate with a circle r = 2 mm at (5, 5) (a copper slug, or a bore), on
-    # a 2 mm mesh: the circle is a 16-gon, whose sides lie up to r(1 − cos(π/16)) = 0.038 mm
-    # inside the circle. The probe sits in that sliver: 1.985 mm from the centre, mid-side.
+    # A 10 mm square plate with a circle r = 2 mm at (5, 5) (a slug of the plate's own
+    # material, or a bore), on a 2 mm mesh: the circle is a 16-gon, whose sides lie up to
+    # r(1 − cos(π/16)) = 0.038 mm inside the circle. The probe sits in that sliver: 1.985 mm
+    # from the centre, mid-side. With the slug of the plate's material, bottom at 20 °C and
+    # top at 30 °C, the field is T = 20 + y (mm), 1-D conduction (Inc §3.1), which linear
+    # elements reproduce exactly.
     circle = ('name = "bore"\nvoid = true\n' if void else
-              'name = "slug"\nmaterial = "cu"\n')
+              'name = "slug"\nmaterial = "m"\n')
     return f"""
 [materials.m]
 k = 10
@@ -117,22 +120,67 @@ def test_a_probe_inside_a_void_circle_is_refused_on_every_mesh(tmp_path, capsys,
 
 
 def test_a_probe_in_the_sliver_of_a_solid_circle_is_read_on_every_mesh():
-    # Inside the true slug but outside its polygon (the plate there is the slug's sliver,
-    # painted below it): valid, and read on the coarse mesh, a refined one and an adaptive
-    # run, which all agree to within their estimates.
-    values = []
+    # Inside the true slug but outside its polygon, with the plate's material around it:
+    # valid, and read exactly (T = 20 + y) on a coarse mesh, a refined one and an adaptive
+    # run.
     for refine, accuracy in ((1.0, ""), (3.0, ""), (1.0, "accuracy = 0.001")):
         text = _circle_model(SLIVER, void=False, accuracy=accuracy)
         result = heat2d.solve(heat2d.parse(text), refine=refine, resistances=False)
-        values.append((result.summary["probes"]["p"], result.summary["probe_errors"]["p"]))
-    for value, error in values[1:]:
-        assert abs(value - values[0][0]) <= error + values[0][1]
+        assert result.summary["probes"]["p"] == pytest.approx(20 + SLIVER[1], abs=1e-9)
+
+
+# The pipe wall of Inc §3.3.1 (Table 3.3): bore r1 = 2 mm at 90 °C, outside r2 = 6 mm
+# convecting (h = 200 W/(m²·K) to 20 °C), k = 5 W/(m·K); T(r) = T1 − q′ ln(r/r1)/(2πk).
+PIPE = """
+[model]
+length_unit = "mm"
+[materials.m]
+k = 5
+[[shape]]
+name = "pipe"
+material = "m"
+circle = { x = 0, y = 0, r = 6 }
+[[shape]]
+name = "bore"
+void = true
+circle = { x = 0, y = 0, r = 2 }
+[[boundary]]
+name = "inner"
+on = "bore"
+temperature = 90
+[[boundary]]
+name = "air"
+on = "exterior"
+h = 200
+ambient = 20
+[mesh]
+size = 1.5
+[[probe]]
+name = "skin"
+at = [X, Y]
+"""
+
+
+def test_a_probe_outside_the_mesh_but_inside_the_true_circle_is_read_within_its_error():
+    # 5.99 mm from the centre, midway between two vertices of the 26-sided outer polygon
+    # (whose sides lie up to 6(1 − cos(π/26)) = 0.044 mm inside the circle): outside the
+    # mesh, so it is read from the nearest triangle's field extended to it, on every mesh,
+    # and must agree with the exact T(r) to within its reported error.
+    q = (90 - 20) / (math.log(3) / (2 * math.pi * 5) + 1 / (2 * math.pi * 6e-3 * 200))
+    angle = math.pi / 26
+    x, y = 5.99 * math.cos(angle), 5.99 * math.sin(angle)
+    exact = 90 - q * math.log(5.99 / 2) / (2 * math.pi * 5)
+    for refine in (1.0, 2.0):
+        text = PIPE.replace("X", repr(x)).replace("Y", repr(y))
+        result = heat2d.solve(heat2d.parse(text), refine=refine, resistances=False)
+        value, error = result.summary["probes"]["skin"], result.summary["probe_errors"]["skin"]
+        assert abs(value - exact) <= error
 
 
 def test_subnormal_accuracies_refine_like_tiny_ones():
     # 1/accuracy overflowed for 5e-324: the goal weights are now relative to the tightest
     # target, so any accuracy far below what the budget allows refines the same meshes.
-    text = _circle_model((3.0, 7.0), void=False, accuracy="accuracy = ACC")
+    text = _circle_model((3.0, 7.0), void=True, accuracy="accuracy = ACC")
     text = text.replace("size = 2\n", "size = 2\nmax_nodes = 3000\n")
     steps = []
     for acc in ("1e-300", "5e-324"):

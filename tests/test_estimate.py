@@ -595,6 +595,12 @@ def test_estimate_covers_probes_at_random_points(name, monkeypatch):
     print(f"\n{name}, 30 random probes and the problem's figures, [mesh] size {first} to {first / 4:.3g}:")
     runs = scattered_runs(name, [first, first / 2, first / 4], 30, 11, monkeypatch)
     assert not sweep_failures(runs)
+    # Not covered by being vast: in every run some figure's true error is at least a tenth
+    # of its ± (the method aims at about a third where the field is smooth; measured 0.37
+    # to 0.78 here).
+    for result, exact in runs:
+        rows = [(t, e) for _, t, e in comparisons(result.summary, exact) if e > 0]
+        assert max(t / e for t, e in rows) >= 0.1
 
 
 # ---------------------------------------------------------------------------------------
@@ -729,11 +735,14 @@ def test_adaptive_accuracy_on_the_maximum(name, target):
     assert true <= reported <= target
     model, refine = heat2d.parse(with_size(case.text, 0.5)), 1.0
     while (r := heat2d.solve(model, refine=refine, resistances=False)).summary[
-            "temperature"]["max_error"] > target:
+            "temperature"]["max_error"] > target and refine < 100:
         refine *= math.sqrt(2)
     print(f"\n{name}: max within {target} K: adaptive {result.summary['mesh']['nodes']} "
           f"nodes (true error {true:.2g} K, reported {reported:.2g} K); uniform "
           f"{r.summary['mesh']['nodes']} nodes until its reported error meets the target")
+    # Smooth fields: adaptive refinement still needs no more nodes than refining by hand.
+    assert r.summary["temperature"]["max_error"] <= target
+    assert result.summary["mesh"]["nodes"] <= r.summary["mesh"]["nodes"]
 
 
 def test_adaptive_stops_within_the_node_budget_and_says_so():
@@ -744,9 +753,11 @@ def test_adaptive_stops_within_the_node_budget_and_says_so():
         "[mesh]\nsize = 1.0\n", "[mesh]\nsize = 1.0\nmax_nodes = 8000\n")
     result = heat2d.solve(heat2d.parse(text))
     adaptive = result.summary["adaptive"]
-    assert adaptive["reached"] is False
+    assert adaptive["reached"] is False and adaptive["stopped"] == "node budget"
     assert len(adaptive["steps"]) > 1
     assert all(4 * step["nodes"] <= 8000 for step in adaptive["steps"])
+    # ... and not far below it: the next mesh (steps grow by less than 2.5×) would pass.
+    assert adaptive["steps"][-1]["nodes"] > 8000 / 4 / 2.5
     assert any("stopped at the node budget (8000)" in w for w in result.summary["warnings"])
     # What is reported is the last mesh's own estimate, still honest.
     true = abs(result.summary["probes"]["near_pin"] - PIN_EXACT)
@@ -864,6 +875,54 @@ size = 1.0
 """
 
 
+STRIPS = """
+[model]
+length_unit = "mm"
+depth = 1
+[materials.m]
+k = 1
+[[shape]]
+name = "strip"
+material = "m"
+rect = { x = 0, y = 0, width = 2, height = 2 }
+repeat = { count = 3, dx = 2 }
+power_density = 1e6
+max_temperature = 20.8
+[[boundary]]
+name = "bottom"
+on = "strip.bottom"
+temperature = 20
+[[boundary]]
+name = "top"
+on = "strip.top"
+temperature = 20.4
+[mesh]
+size = 0.3
+"""
+
+
+def test_groups_and_limit_margins_cover_their_true_errors():
+    # The generation slab of Inc §3.5.1 (as generation_slab() above) cut into three
+    # repeated strips side by side: each strip, and so the group, has the slab's exact
+    # maximum and mean. The group's ± (the hottest member's for the max; the
+    # volume-weighted mean of the members' for the mean, which bounds the error of a
+    # weighted mean by the triangle inequality) and each limit margin's ± must cover them.
+    qdot, half, k, ts1, ts2 = 1e6, 1e-3, 1.0, 20.0, 20.4
+    x_star = k * (ts2 - ts1) / (2 * qdot * half)
+    t_max = (qdot * half**2 / (2 * k) * (1 - (x_star / half) ** 2)
+             + (ts2 - ts1) / 2 * x_star / half + (ts1 + ts2) / 2)
+    t_mean = (ts1 + ts2) / 2 + qdot * half**2 / (3 * k)
+    s = heat2d.solve(heat2d.parse(STRIPS)).summary
+    group = s["groups"]["strip"]
+    assert abs(group["max"] - t_max) <= group["max_error"]
+    assert abs(group["mean"] - t_mean) <= group["mean_error"]
+    for i in (1, 2, 3):
+        limit = s["limits"][f"strip[{i}]"]
+        assert abs(limit["margin"] - (20.8 - t_max)) <= limit["margin_error"]
+    # Not covered by accident: each ± is under a tenth of the slab's 0.5 K rise.
+    assert max(group["max_error"], group["mean_error"]) < 0.05
+
+
 def test_groups_and_limit_margins_carry_the_error_of_their_shapes():
     result = heat2d.solve(heat2d.parse(THREE.replace("LIMIT", "85")))
     s = result.summary
@@ -871,9 +930,8 @@ def test_groups_and_limit_margins_carry_the_error_of_their_shapes():
     group = s["groups"]["resistor"]
     hottest = max(members, key=lambda m: m["max"])
     assert group["max"] == hottest["max"] and group["max_error"] == hottest["max_error"]
-    volume = sum(m["volume_m3"] for m in members)
-    assert group["mean_error"] == pytest.approx(
-        sum(m["mean_error"] * m["volume_m3"] for m in members) / volume, rel=1e-12)
+    assert min(m["mean_error"] for m in members) <= group["mean_error"] <= max(
+        m["mean_error"] for m in members)
     for i, m in enumerate(members, 1):
         assert s["limits"][f"resistor[{i}]"]["margin_error"] == m["max_error"] > 0
     assert not any("within the max's estimated error" in w for w in s["warnings"])
