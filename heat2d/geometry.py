@@ -353,11 +353,12 @@ def _interfaces(model: Model, visible: list, exposed: np.ndarray, a: np.ndarray,
     """Interior segments shared by the visible parts of each interface's two shapes."""
     owner = np.full(len(a), -1)
     for itf in model.interfaces:
-        va, vb = (visible[model.shape(n).index] for n in (itf.a, itf.b))
+        va, vb = (shapely.union_all([visible[s.index] for s in model.members(n)])
+                  for n in (itf.a, itf.b))
         mask = (~exposed & _on(shapely.boundary(va), a, b, mid, tol)
                 & _on(shapely.boundary(vb), a, b, mid, tol))
         if not mask.any():
-            raise GeometryError(f"shapes {itf.a!r} and {itf.b!r} share no edge (they must touch "
+            raise GeometryError(f"{itf.a!r} and {itf.b!r} share no edge (they must touch "
                                 "along a line where both are visible)", file=model.source,
                                 entry=f"interface \"{itf.name}\"", line=itf.line)
         clash = mask & (owner >= 0)

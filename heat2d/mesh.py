@@ -207,15 +207,19 @@ def _finish(geometry: Geometry, out: dict) -> Mesh:
 
 def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.ndarray,
                       edges: np.ndarray, iface_edges: np.ndarray, iface_id: np.ndarray):
-    """Give shape ``b`` of each interface its own copy of the interface nodes.
+    """Give side ``b`` (a shape, or a group's shapes) of each interface its own copy of the
+    interface nodes.
 
     Every node of the interface is split, its ends included; where a third shape meets an
     end, that shape stays joined to shape ``a``'s copy, so no heat bypasses the contact
     (the third shape then touches ``b`` through the other nodes of their shared edge
-    only). A node shared by two different interfaces stays whole.
+    only). A node shared by two different interfaces is split for one of them only.
     """
     n = len(points)
-    side_b = np.array([model.shape(i.b).index for i in model.interfaces])
+    # in_b[i, s]: shape s is on side b of interface i (a shape, or a group's members)
+    in_b = np.zeros((max(len(model.interfaces), 1), len(model.shapes)), dtype=bool)
+    for i in model.interfaces:
+        in_b[i.index, [s.index for s in model.members(i.b)]] = True
     node_iface = np.full(n, -1)
     node_iface[iface_edges.ravel()] = np.repeat(iface_id, 2)
     clash = np.zeros(n, dtype=bool)
@@ -234,12 +238,12 @@ def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.nda
     e_keys = np.sort(edges, axis=1) @ np.array([n, 1])
     owner = order[np.searchsorted(keys[order], e_keys)]          # flat index tri*3 + local
     # Renumber shape b's side, in the triangles and in the exposed edges it owns.
-    move = split[entry_node] & (entry_shape == side_b[np.maximum(k, 0)])
+    move = split[entry_node] & in_b[np.maximum(k, 0), entry_shape]
     flat = entry_node.copy()
     flat[move] = new_id[entry_node[move]]
     tris = flat.reshape(-1, 3)
     edge_shape = shape[owner // 3][:, None]
-    move_edge = split[edges] & (edge_shape == side_b[np.maximum(node_iface[edges], 0)])
+    move_edge = split[edges] & in_b[np.maximum(node_iface[edges], 0), edge_shape]
     edges = np.where(move_edge, new_id[edges], edges)
     b_side = np.where(split[iface_edges], new_id[iface_edges], iface_edges)
     points = np.vstack([points, points[split]])

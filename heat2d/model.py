@@ -170,7 +170,8 @@ class Group:
 
 @dataclass(frozen=True)
 class Interface:
-    """A thermal contact resistance R″ (m²·K/W) on the edges shapes ``a`` and ``b`` share."""
+    """A thermal contact resistance R″ (m²·K/W) on the edges shared by ``a`` and ``b``,
+    each a shape or a group (a stack or repeated shape) name."""
 
     name: str
     index: int
@@ -557,7 +558,8 @@ class _Reader:
         group_names = {g.name: g for g in groups}
         boundaries = self.read_boundaries(self.array_of_tables(data, "boundary"), by_name,
                                           group_names)
-        interfaces = self.read_interfaces(self.array_of_tables(data, "interface"), by_name)
+        interfaces = self.read_interfaces(self.array_of_tables(data, "interface"), by_name,
+                                          group_names)
         probes = self.read_probes(self.array_of_tables(data, "probe"))
         mesh = self.read_mesh(data.get("mesh", {}))
         return Model(source=self.source, length_unit=unit, depth=depth, params=params,
@@ -1030,8 +1032,8 @@ class _Reader:
         raise self.fail(entry, f"on: {on!r} names no shape (shapes: {known}; sides: "
                         f"SHAPE.{'/'.join(SIDES)}; or exterior, or {{ box = [...] }})", line)
 
-    def read_interfaces(self, raw: list[dict[str, Any]], shapes: dict[str, Shape]
-                        ) -> list[Interface]:
+    def read_interfaces(self, raw: list[dict[str, Any]], shapes: dict[str, Shape],
+                        groups: dict[str, Group]) -> list[Interface]:
         out: list[Interface] = []
         seen: set[str] = set()
         for i, spec in enumerate(raw):
@@ -1040,14 +1042,20 @@ class _Reader:
             line = self.index.find(*where, "between")
             if not (isinstance(pair, list) and len(pair) == 2
                     and all(isinstance(v, str) for v in pair)):
-                raise self.fail(entry, "between: expected two shape names", line)
+                raise self.fail(entry, "between: expected two shape or group names", line)
+            members = []
             for v in pair:
-                if v not in shapes:
-                    raise self.fail(entry, f"between: no shape {v!r}", line)
-                if shapes[v].void:
+                if v in groups:
+                    members.append(set(groups[v].members))
+                elif v in shapes:
+                    members.append({v})
+                else:
+                    raise self.fail(entry, f"between: no shape or group {v!r}", line)
+                if any(shapes[m].void for m in members[-1]):
                     raise self.fail(entry, f"between: {v!r} is void", line)
-            if pair[0] == pair[1]:
-                raise self.fail(entry, "between: needs two different shapes", line)
+            if members[0] & members[1]:
+                raise self.fail(entry, "between: needs two different shapes (or groups with "
+                                "no shape in common)", line)
             if "resistance" not in spec:
                 raise self.fail(entry, "needs resistance (m²·K/W)", self.index.find(*where))
             r = self.number(spec["resistance"], entry, "resistance", where, low=0.0,

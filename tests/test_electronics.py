@@ -575,13 +575,64 @@ size = 0.2
     assert r.summary["interfaces"]["joint"]["heat_w"] == pytest.approx(q, rel=1e-6)
 
 
+STRIPS_ON_BASE = """
+[model]
+length_unit = "mm"
+depth = 1
+[materials.a]
+k = 2
+[materials.b]
+k = 50
+[[shape]]
+name = "base"
+material = "b"
+rect = { x = 0, y = 0, width = 6, height = 2 }
+[[shape]]
+name = "strip"
+material = "a"
+rect = { x = 0, y = 2, width = 2, height = 1 }
+repeat = { count = 3, dx = 2 }
+INTERFACES
+[[boundary]]
+name = "hot"
+on = "strip.top"
+temperature = 100
+[[boundary]]
+name = "cold"
+on = "base.bottom"
+temperature = 20
+[mesh]
+size = 0.4
+"""
+
+
+def test_interface_with_a_group_covers_every_member():
+    # Three repeated strips side by side on a base, a contact under all of them named by
+    # the group: a 1-D composite wall with contact resistance (Inc §3.1), q″ = ΔT/(L_a/k_a
+    # + R″ + L_b/k_b) over the whole 6 mm, exact in linear elements; the same as one
+    # interface per strip, and the strips stay joined to one another.
+    group = '[[interface]]\nname = "pad"\nbetween = ["strip", "base"]\nresistance = 5e-4\n'
+    each = "".join(f'[[interface]]\nname = "pad{i}"\nbetween = ["strip[{i}]", "base"]\n'
+                   f"resistance = 5e-4\n" for i in (1, 2, 3))
+    q = 80.0 / (1e-3 / 2 + 5e-4 + 2e-3 / 50)
+    r = run(STRIPS_ON_BASE.replace("INTERFACES", group))
+    assert heat(r, "cold") == pytest.approx(q * 6e-3 * 1e-3, rel=ROUND_OFF)
+    itf = r.summary["interfaces"]["pad"]
+    assert itf["between"] == ["strip", "base"]
+    assert itf["mean_jump"] == pytest.approx(q * 5e-4, rel=ROUND_OFF)
+    assert r.temperature_at(2.0, 2.5) == pytest.approx(100 - q * 0.5e-3 / 2, abs=1e-9)
+    separate = run(STRIPS_ON_BASE.replace("INTERFACES", each))
+    assert heat(separate, "cold") == pytest.approx(heat(r, "cold"), rel=ROUND_OFF)
+
+
 def test_interface_errors():
     apart = WALL.replace("BETWEEN", '["A", "B"]').replace("x = 4, y = 0", "x = 5, y = 0")
-    with pytest.raises(GeometryError, match=r'interface "joint": shapes .A. and .B. share no'):
+    with pytest.raises(GeometryError, match=r'interface "joint": .A. and .B. share no'):
         run(apart + "temperature = 30")
-    for between, message in (('["A", "C"]', r"interface \"joint\": between: no shape 'C'"),
+    for between, message in (('["A", "C"]',
+                              r"interface \"joint\": between: no shape or group 'C'"),
                              ('["A", "A"]', r"between: needs two different shapes"),
-                             ('["A"]', r"between: expected two shape names")):
+                             ('["A"]', r"between: expected two shape or group names")):
         with pytest.raises(ModelError, match=message):
             heat2d.parse(WALL.replace("BETWEEN", between) + "temperature = 30")
     with pytest.raises(ModelError, match=r"resistance: must be > 0"):
