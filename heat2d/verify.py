@@ -631,18 +631,18 @@ size = 0.7
 """ + "".join(f'[[probe]]\nname = "{n}"\nat = [{x}, {y}]\n' for n, (x, y) in points.items())
     r = heat2d.solve(heat2d.parse(text, source="verify"), resistances=False)
     basis = "the run's own reported error (± of the default estimate) must cover the truth"
-    records = [check(name, f"T at ({x:g}, {y:g}) mm within its ±", source, "°C",
+    records = [check(name, f"T({x:g}, {y:g}) within ±", source, "°C",
                      t1 + (t2 - t1) * plate_series(x, y, side, side), r.summary["probes"][n],
                      r.summary["probe_errors"][n], basis)
                for n, (x, y) in points.items()]
     # The mean is 1/4 of the way from T1 to T2 exactly (four rotated copies superpose to
     # a plate with every side at T2).
     plate = r.summary["shapes"]["plate"]
-    records.append(check(name, "mean θ* = 0.25 within its ±", source, "°C",
+    records.append(check(name, "mean θ* = 0.25 within ±", source, "°C",
                          t1 + 0.25 * (t2 - t1), plate["mean"], plate["mean_error"], basis))
     # A ± too large to say anything would pass the checks above: the centre's must also
     # be small against the field (O(h²) puts it near 0.2 % of T2 − T1 on this mesh).
-    records.append(check(name, "± at the centre below 1 % of T2 − T1", source, "K", 0.0,
+    records.append(check(name, "centre ± < 1 % of ΔT", source, "K", 0.0,
                          r.summary["probe_errors"]["centre"], 0.01 * (t2 - t1),
                          "an estimate must be informative as well as cover the truth"))
     return records
