@@ -195,6 +195,18 @@ def probe_corrections(solution, jumps: np.ndarray | None = None) -> dict[str, fl
     return out
 
 
+def _peaks_and_energy(result, out: dict[str, Any], jumps: np.ndarray) -> dict[str, float]:
+    """Add to the maxima in ``out`` the rise a peak may have between nodes (they are
+    sampled at nodes), and return the energy-norm indicator of the run."""
+    out["temperature.max"]["error"] += peak_sampling(result.solution, jumps=jumps)
+    for i, shape in enumerate(result.model.shapes):
+        if f"shapes.{shape.name}.max" in out:
+            out[f"shapes.{shape.name}.max"]["error"] += peak_sampling(result.solution, i,
+                                                                      jumps)
+    _, total, relative = recovery_indicator(result.solution, jumps=jumps)
+    return {"indicator": total, "relative": relative}
+
+
 def ladder(nodes: int) -> tuple[float, float]:
     """Refinement factors of the two coarser meshes of a large run, finest first (target
     sizes ×2 and ×4: together about a third of the run's nodes)."""
@@ -224,20 +236,14 @@ def nested(result, fine: dict[str, Any]) -> dict[str, Any]:
             corrected = max(abs((refined[key] + c_fine) - (value + c_h)), abs(c_fine))
             error = max(error, CORRECTION_SAFETY * abs(c_h) + NESTED_FACTOR * corrected)
         out[key] = {"error": error, "order": None, "converging": True}
-    # The max is sampled at nodes: add the rise a peak may have between them.
-    out["temperature.max"]["error"] += peak_sampling(result.solution, jumps=jumps)
-    for i, shape in enumerate(result.model.shapes):
-        if f"shapes.{shape.name}.max" in out:
-            out[f"shapes.{shape.name}.max"]["error"] += peak_sampling(result.solution, i,
-                                                                      jumps)
-    _, total, relative = recovery_indicator(result.solution, jumps=jumps)
+    energy = _peaks_and_energy(result, out, jumps)
     return {"method": "Richardson extrapolation against a nested refinement (each triangle "
                       "split in four), order assumed 1, safety factor 2; probes also with "
                       "their interpolation corrected by recovered gradients, maxima with "
                       "the rise a peak may have between nodes; Zienkiewicz-Zhu recovery "
                       "indicator for the energy norm",
             "reliable": True, "nodes": [fine["nodes"], len(result.mesh.points)],
-            "figures": out, "energy_norm": {"indicator": total, "relative": relative}}
+            "figures": out, "energy_norm": energy}
 
 
 def grid_convergence(values: list[float], nodes: list[int], *, of: int = 0) -> Estimate:
@@ -328,18 +334,13 @@ def estimate(result, others: list) -> dict[str, Any]:
                                           zip(values, corrections, strict=True)], nodes, of=of)
             out[key]["error"] = max(out[key]["error"], CORRECTION_SAFETY
                                     * abs(own_corrections[name]) + corrected.error)
-    out["temperature.max"]["error"] += peak_sampling(result.solution, jumps=jumps)
-    for i, shape in enumerate(result.model.shapes):
-        if f"shapes.{shape.name}.max" in out:
-            out[f"shapes.{shape.name}.max"]["error"] += peak_sampling(result.solution, i,
-                                                                      jumps)
-    _, total, relative = recovery_indicator(result.solution, jumps=jumps)
+    energy = _peaks_and_energy(result, out, jumps)
     return {"method": "grid convergence index over three non-nested meshes (Richardson "
                       "extrapolation with the observed order); less reliable: point values "
                       "of non-nested meshes scatter; Zienkiewicz-Zhu recovery indicator for "
                       "the energy norm",
             "reliable": False, "nodes": nodes, "figures": out,
-            "energy_norm": {"indicator": total, "relative": relative}}
+            "energy_norm": energy}
 
 
 def annotate(summary: dict[str, Any], errors: dict[str, Any]) -> None:
