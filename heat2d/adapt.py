@@ -78,8 +78,6 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
     mesh = build_mesh(geometry)
     check_budget(mesh)
     steps: list[dict[str, Any]] = []
-    reached = False
-    floor_reached = stalled = False
     while True:
         solution = solve(assemble(mesh), method=method)
         result = compute_results(solution, resistances=False)
@@ -92,43 +90,41 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
         step: dict[str, Any] = {
             "nodes": len(mesh.points), "max_temperature": result.summary["temperature"]["max"],
             "estimate": {k: errors["figures"][k]["error"] for k in goals}}
-        reached = all(errors["figures"][k]["error"] <= v for k, v in goals.items())
         steps.append(step)
-        if reached:
+        if all(errors["figures"][k]["error"] <= v for k, v in goals.items()):
+            stop = "reached"
             break
         worst = [max(s["estimate"][k] / v for k, v in goals.items()) for s in steps]
         if len(worst) > STALL_STEPS and worst[-1] > (1 - STALL_GAIN) * worst[-1 - STALL_STEPS]:
-            stalled = True                      # the estimate no longer falls
+            stop = "stalled"                    # the estimate no longer falls
             break
         bounds = _area_bounds(mesh, goal_indicator(solution, goals, step["estimate"]))
         if not (bounds > 0).any():
-            floor_reached = True                # nothing left that may be refined
+            stop = "smallest size"              # nothing left that may be refined
             break
         candidate = refine_mesh(mesh, bounds)
         if len(candidate.points) * GROWTH > budget:
-            break                               # its check mesh would pass the budget
+            stop = "node budget"                # its check mesh would pass the budget
+            break
         mesh = candidate
     final = compute_results(solution, resistances=resistances)
     annotate(final.summary, errors)
-    stop = ("reached" if reached else "stalled" if stalled else
-            "smallest size" if floor_reached else "node budget")
-    final.summary["adaptive"] = {"targets": goals, "reached": reached, "stopped": stop,
-                                 "steps": steps}
-    if not reached and stalled:
-        final.summary["warnings"].append(
-            f"adaptive refinement stopped before reaching the requested accuracy: the "
-            f"estimate fell by less than {STALL_GAIN:.0%} over the last {STALL_STEPS} steps "
-            "(a singular point, such as two held temperatures meeting, that refinement "
-            "cannot resolve?)")
-    elif not reached and floor_reached:
-        final.summary["warnings"].append(
-            "adaptive refinement stopped before reaching the requested accuracy: the "
-            "triangles where the error is are at the smallest size allowed (about "
-            f"{MIN_SIZE_FRACTION * 3:g} of [mesh] size); refine such a model with --refine")
-    elif not reached:
-        final.summary["warnings"].append(
-            f"adaptive refinement stopped at the node budget ({budget}) before reaching the "
-            "requested accuracy: the next mesh's check (four times its nodes) would pass it")
+    final.summary["adaptive"] = {"targets": goals, "reached": stop == "reached",
+                                 "stopped": stop, "steps": steps}
+    unmet = "adaptive refinement stopped before reaching the requested accuracy: "
+    warning = {
+        "stalled": f"{unmet}the estimate fell by less than {STALL_GAIN:.0%} over the last "
+                   f"{STALL_STEPS} steps (a singular point, such as two held temperatures "
+                   "meeting, that refinement cannot resolve?)",
+        "smallest size": f"{unmet}the triangles where the error is are at the smallest size "
+                         f"allowed (about {MIN_SIZE_FRACTION * 3:g} of [mesh] size); refine "
+                         "such a model with --refine",
+        "node budget": f"adaptive refinement stopped at the node budget ({budget}) before "
+                       "reaching the requested accuracy: the next mesh's check (four times "
+                       "its nodes) would pass it",
+    }
+    if stop in warning:
+        final.summary["warnings"].append(warning[stop])
     return final
 
 
