@@ -333,15 +333,18 @@ at = [{length}, {t / 2}]
     ]
 
 
-def case_plate() -> list[Record]:
-    """Square plate, three sides at T1 and the top at T2: the centre is at 1/4 exactly."""
-    name, source = "plate_series", f"{INC} §4.2, Eq. 4.19"
-    side, t1, t2 = 10.0, 20.0, 120.0
-    text = f"""
+PLATE = (10.0, 20.0, 120.0)
+"""The §4.2 plate of the verification cases: side (mm), T1 (three sides) and T2 (top), °C."""
+
+
+def _plate_text(k: float, size: float, probes: dict[str, tuple[float, float]]) -> str:
+    """The §4.2 plate as a model: conductivity ``k``, ``[mesh] size`` (mm), probes."""
+    side, t1, t2 = PLATE
+    return f"""
 [model]
 length_unit = "mm"
 [materials.m]
-k = 50
+k = {k}
 [[shape]]
 name = "plate"
 material = "m"
@@ -355,14 +358,15 @@ name = "rest"
 on = "exterior"
 temperature = {t1}
 [mesh]
-size = 0.25
-[[probe]]
-name = "centre"
-at = [5, 5]
-[[probe]]
-name = "off_centre"
-at = [7.5, 3]
-"""
+size = {size}
+""" + "".join(f'[[probe]]\nname = "{n}"\nat = [{x}, {y}]\n' for n, (x, y) in probes.items())
+
+
+def case_plate() -> list[Record]:
+    """Square plate, three sides at T1 and the top at T2: the centre is at 1/4 exactly."""
+    name, source = "plate_series", f"{INC} §4.2, Eq. 4.19"
+    side, t1, t2 = PLATE
+    text = _plate_text(50, 0.25, {"centre": (5, 5), "off_centre": (7.5, 3)})
     r = _run(text)
     # Pointwise O(h²) away from the corners: h²/8·|θ''| ≈ (h/L)²·π²/8 ≈ 8e-4 of ΔT at
     # h = L/40; 2e-3 of ΔT allows for the scatter of pointwise errors on unstructured meshes.
@@ -606,29 +610,10 @@ def case_error_estimate() -> list[Record]:
     import heat2d
 
     name, source = "error_estimate", f"{INC} §4.2, Eq. 4.19"
-    side, t1, t2 = 10.0, 20.0, 120.0
+    side, t1, t2 = PLATE
     points = {"centre": (5.0, 5.0), "near_top": (2.5, 8.0), "low": (7.3, 2.1),
               "corner": (9.3, 9.1)}
-    text = f"""
-[model]
-length_unit = "mm"
-[materials.m]
-k = 10
-[[shape]]
-name = "plate"
-material = "m"
-rect = {{ x = 0, y = 0, width = {side}, height = {side} }}
-[[boundary]]
-name = "top"
-on = "plate.top"
-temperature = {t2}
-[[boundary]]
-name = "rest"
-on = "exterior"
-temperature = {t1}
-[mesh]
-size = 0.7
-""" + "".join(f'[[probe]]\nname = "{n}"\nat = [{x}, {y}]\n' for n, (x, y) in points.items())
+    text = _plate_text(10, 0.7, points)
     r = heat2d.solve(heat2d.parse(text, source="verify"), resistances=False)
     basis = "the run's own reported error (± of the default estimate) must cover the truth"
     records = [check(name, f"T({x:g}, {y:g}) within ±", source, "°C",
