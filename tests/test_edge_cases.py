@@ -14,6 +14,7 @@ import pytest
 import heat2d
 from heat2d import cli
 from heat2d.writers import format_summary
+from tests.test_estimate import pipe_wall, with_size
 
 # A 1 mm alumina heater over a 3 mm aluminium plate, a contact resistance between them, and
 # 30 kW/m² into the heater's top; the plate's bottom is held at 40 °C. Across the contact
@@ -129,49 +130,20 @@ def test_a_probe_in_the_sliver_of_a_solid_circle_is_read_on_every_mesh():
         assert result.summary["probes"]["p"] == pytest.approx(20 + SLIVER[1], abs=1e-9)
 
 
-# The pipe wall of Inc §3.3.1 (Table 3.3): bore r1 = 2 mm at 90 °C, outside r2 = 6 mm
-# convecting (h = 200 W/(m²·K) to 20 °C), k = 5 W/(m·K); T(r) = T1 − q′ ln(r/r1)/(2πk).
-PIPE = """
-[model]
-length_unit = "mm"
-[materials.m]
-k = 5
-[[shape]]
-name = "pipe"
-material = "m"
-circle = { x = 0, y = 0, r = 6 }
-[[shape]]
-name = "bore"
-void = true
-circle = { x = 0, y = 0, r = 2 }
-[[boundary]]
-name = "inner"
-on = "bore"
-temperature = 90
-[[boundary]]
-name = "air"
-on = "exterior"
-h = 200
-ambient = 20
-[mesh]
-size = 1.5
-[[probe]]
-name = "skin"
-at = [X, Y]
-"""
-
-
 def test_a_probe_outside_the_mesh_but_inside_the_true_circle_is_read_within_its_error():
-    # 5.99 mm from the centre, midway between two vertices of the 26-sided outer polygon
-    # (whose sides lie up to 6(1 − cos(π/26)) = 0.044 mm inside the circle): outside the
-    # mesh, so it is read from the nearest triangle's field extended to it, on every mesh,
-    # and must agree with the exact T(r) to within its reported error.
-    q = (90 - 20) / (math.log(3) / (2 * math.pi * 5) + 1 / (2 * math.pi * 6e-3 * 200))
+    # The pipe wall of tests/test_estimate.py (Inc §3.3.1, Table 3.3: bore r1 = 2 mm held,
+    # outside r2 = 6 mm convecting, exact T(r)) on a 1.5 mm mesh. A probe 5.99 mm from the
+    # centre, midway between two vertices of the 26-sided outer polygon (whose sides lie up
+    # to 6(1 − cos(π/26)) = 0.044 mm inside the circle), is outside the mesh: it is read
+    # from the nearest triangle's field extended to it, on every mesh, and must agree with
+    # the exact T(r) to within its reported error.
+    case = pipe_wall()
     angle = math.pi / 26
     x, y = 5.99 * math.cos(angle), 5.99 * math.sin(angle)
-    exact = 90 - q * math.log(5.99 / 2) / (2 * math.pi * 5)
+    exact = case.field(x, y)
+    text = (with_size(case.text, 1.5).split("\n[[probe]]")[0]
+            + f'\n[[probe]]\nname = "skin"\nat = [{x!r}, {y!r}]\n')
     for refine in (1.0, 2.0):
-        text = PIPE.replace("X", repr(x)).replace("Y", repr(y))
         result = heat2d.solve(heat2d.parse(text), refine=refine, resistances=False)
         value, error = result.summary["probes"]["skin"], result.summary["probe_errors"]["skin"]
         assert abs(value - exact) <= error
