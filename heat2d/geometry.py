@@ -249,19 +249,25 @@ EXACT_CIRCLE_SIDES = 2048
 def _check_probes(model: Model, body: shapely.Geometry, tol: float, grid: float) -> None:
     """Every probe must lie in the body as drawn with true circles (not their polygons,
     which change with the mesh size): a probe in the sliver between a circle and its
-    polygon is then valid on every mesh (results.probe_weights moves it onto the mesh),
-    and one inside a void circle invalid on every mesh."""
+    polygon is then valid on every mesh (results.probe_weights reads it from the nearest
+    triangle), and one inside a void circle invalid on every mesh."""
     circles = [s.circle for s in model.shapes if s.circle is not None]
+    exact, exact_tol = body, tol
     if circles and model.probes:
         polys = [shapely.set_precision(Polygon(
             shape_outline(s, 2 * math.pi * s.circle[2] / EXACT_CIRCLE_SIDES)
             if s.circle is not None else s.points), grid) for s in model.shapes]
-        body = _paint(model, polys, grid)[1]
-        tol += max(r for _, _, r in circles) * (1 - math.cos(math.pi / EXACT_CIRCLE_SIDES))
+        exact = _paint(model, polys, grid)[1]
+        exact_tol += max(r for _, _, r in circles) * (1 - math.cos(math.pi / EXACT_CIRCLE_SIDES))
     for probe in model.probes:
-        if not shapely.dwithin(body, shapely.Point(probe.x, probe.y), tol):
-            raise GeometryError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body "
-                                "(outside every shape, or in a void)", file=model.source,
+        point = shapely.Point(probe.x, probe.y)
+        if not shapely.dwithin(exact, point, exact_tol):
+            where = (": it lies just inside a void circle, whose mesh polygon leaves it in "
+                     "the material only on coarse meshes; move it out of the circle"
+                     if shapely.dwithin(body, point, tol) else
+                     " (outside every shape, or in a void)")
+            raise GeometryError(f"at = [{probe.x:g}, {probe.y:g}] is not inside the body"
+                                f"{where}", file=model.source,
                                 entry=f"probe \"{probe.name}\"", line=probe.line)
 
 

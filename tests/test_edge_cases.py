@@ -117,6 +117,7 @@ def test_a_probe_inside_a_void_circle_is_refused_on_every_mesh(tmp_path, capsys,
         assert cli.main(argv) == 2
         err = capsys.readouterr().err.strip().splitlines()
         assert len(err) == 1 and 'probe "p": at = [' in err[0] and "not inside" in err[0]
+        assert "just inside a void circle" in err[0]            # says what to fix
     assert not (tmp_path / "o").exists()
 
 
