@@ -33,7 +33,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 from test_estimate import SCATTER, comparisons, scattered_runs  # noqa: E402
 
-from heat2d import adapt, estimate  # noqa: E402
+from heat2d.pipeline import adaptive as adapt  # noqa: E402
+from heat2d.post import estimate  # noqa: E402
 
 LARGE = {  # one mesh per problem above estimate.REFINED_LIMIT: √2 steps from SCATTER
     "generation_slab": 9, "cylinder_wall": 11, "corner": 9, "pipe_wall": 11, "plate": 10,

@@ -126,8 +126,8 @@ size = {size:.6g}
 
 def count_nodes(size: float, **kwargs) -> int:
     import heat2d
-    from heat2d.geometry import build_geometry
-    from heat2d.mesh import build_mesh
+    from heat2d.fem.geometry import build_geometry
+    from heat2d.fem.mesh import build_mesh
 
     return len(build_mesh(build_geometry(heat2d.parse(board_model(size, **kwargs)))).points)
 
@@ -172,7 +172,7 @@ def whole_run(model_path: Path, out_dir: Path, method: str = "auto") -> dict:
     import json
 
     import heat2d.cli
-    import heat2d.writers as writers
+    import heat2d.post.writers as writers
 
     writer_times: dict[str, float] = {}
     original = dict(writers.WRITERS)
@@ -210,7 +210,7 @@ def floor_mesh(geometry):
     import numpy as np
     import triangle
 
-    from heat2d.mesh import EQUILATERAL_AREA
+    from heat2d.fem.mesh import EQUILATERAL_AREA
 
     regions = geometry.seeds.copy()
     regions[:, 2] = np.arange(len(regions))
@@ -368,7 +368,7 @@ def main(argv: list[str] | None = None) -> int:
 
     import heat2d
     import heat2d.cli  # noqa: F401
-    from heat2d.geometry import build_geometry
+    from heat2d.fem.geometry import build_geometry
     t_core = time.perf_counter() - t0
     t0 = time.perf_counter()
     import matplotlib.figure  # noqa: F401

@@ -2,13 +2,13 @@
 
 For each node count the board model of run_vs_floor.py is meshed and assembled
 through heat2d's own stages (build_geometry, build_mesh, assemble; not timed),
-then ``heat2d.solver.solve(system, method=...)`` is timed for ``direct`` and
+then ``heat2d.fem.solver.solve(system, method=...)`` is timed for ``direct`` and
 ``multigrid``. A run also reuses the solve's factor once per powered shape (the
 °C/W matrix of the results stage), so the time of one extra right-hand side
 (unit power in the die, homogeneous boundary values) is timed too.
 
 The crossover is the smallest node count from which multigrid stays faster;
-compare it with ``heat2d.solver.AUTO_DIRECT_LIMIT``.
+compare it with ``heat2d.fem.solver.AUTO_DIRECT_LIMIT``.
 
     python benchmarks/solver_threshold.py [--nodes 5000,10000,...] [--repeat 1] [--blas-threads N]
 """
@@ -29,9 +29,9 @@ def build_system(nodes: int):
     from run_vs_floor import board_model, size_for_nodes
 
     import heat2d
-    from heat2d.assembly import assemble
-    from heat2d.geometry import build_geometry
-    from heat2d.mesh import build_mesh
+    from heat2d.fem.assembly import assemble
+    from heat2d.fem.geometry import build_geometry
+    from heat2d.fem.mesh import build_mesh
 
     model = heat2d.parse(board_model(size_for_nodes(nodes)), source="board.toml")
     return assemble(build_mesh(build_geometry(model)))
@@ -55,7 +55,7 @@ def unit_power_rhs(system, free):
 def time_method(system, method: str, repeat: int) -> dict:
     import numpy as np
 
-    from heat2d.solver import solve
+    from heat2d.fem.solver import solve
 
     best = None
     for _ in range(repeat):
@@ -110,7 +110,7 @@ def main(argv: list[str] | None = None) -> int:
     import scipy.sparse.linalg  # noqa: F401
     from run_vs_floor import blas_info, peak_rss_mb
 
-    from heat2d.solver import AUTO_DIRECT_LIMIT
+    from heat2d.fem.solver import AUTO_DIRECT_LIMIT
 
     targets = [int(n) for n in args.nodes.split(",") if n.strip()]
     print(f"machine: {os.cpu_count()} cores, load average "
@@ -148,7 +148,7 @@ def main(argv: list[str] | None = None) -> int:
 
     print(f"\ncrossover, solve only:              {say(solve_only)}")
     print(f"crossover, solve + one extra rhs:   {say(with_rhs)}")
-    print(f"heat2d.solver.AUTO_DIRECT_LIMIT:    {AUTO_DIRECT_LIMIT} unknowns")
+    print(f"heat2d.fem.solver.AUTO_DIRECT_LIMIT:    {AUTO_DIRECT_LIMIT} unknowns")
     print(f"peak RSS {peak_rss_mb():.0f} MB")
     return 0
 

@@ -13,8 +13,6 @@ layer over it. The solver stack (scipy, shapely, triangle) loads on first use, s
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
 from .errors import (  # noqa: E402
     GeometryError,
     Heat2dError,
@@ -24,6 +22,7 @@ from .errors import (  # noqa: E402
     SolveError,
 )
 from .model import Model, from_dict, load, parse  # noqa: E402
+from .version import __version__  # noqa: E402
 
 
 def solve(model: Model, **options):

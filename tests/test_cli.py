@@ -104,7 +104,7 @@ def test_internal_failure_exits_1_without_traceback(model_file, tmp_path, capsys
     def broken(*args, **kwargs):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(heat2d.pipeline, "solve", broken)
+    monkeypatch.setattr(heat2d.pipeline.chain, "solve", broken)
     out = tmp_path / "out"
     assert cli.main(["run", str(model_file), "--out", str(out)]) == 1
     err = capsys.readouterr().err
@@ -115,12 +115,12 @@ def test_internal_failure_exits_1_without_traceback(model_file, tmp_path, capsys
 
 
 def test_failed_writer_leaves_nothing_half_written(model_file, tmp_path, monkeypatch):
-    import heat2d.writers
+    import heat2d.post.writers
 
     def broken(result, path):
         raise OSError("disk full")
 
-    monkeypatch.setitem(heat2d.writers.WRITERS, "png", ("{stem}.png", broken))
+    monkeypatch.setitem(heat2d.post.writers.WRITERS, "png", ("{stem}.png", broken))
     out = tmp_path / "out"
     assert cli.main(["run", str(model_file), "--out", str(out), "--quiet"]) == 1
     assert list(out.iterdir()) == []

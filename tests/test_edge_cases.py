@@ -13,7 +13,7 @@ import pytest
 
 import heat2d
 from heat2d import cli
-from heat2d.writers import format_summary
+from heat2d.post.writers import format_summary
 from tests.test_estimate import pipe_wall, with_size
 
 # A 1 mm alumina heater over a 3 mm aluminium plate, a contact resistance between them, and

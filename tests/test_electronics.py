@@ -28,7 +28,7 @@ from scipy.optimize import brentq
 
 import heat2d
 from heat2d import GeometryError, ModelError, cli
-from heat2d.geometry import build_geometry
+from heat2d.fem.geometry import build_geometry
 
 ROUND_OFF = 1e-9
 SIGMA = 5.670374419e-8   # Stefan–Boltzmann, W/(m²·K⁴): CODATA 2018 value (exact in SI since 2019)

@@ -27,9 +27,11 @@ from scipy.integrate import quad
 from scipy.optimize import brentq
 
 import heat2d
-from heat2d import adapt, cli, pipeline
-from heat2d.assembly import assemble
-from heat2d.estimate import grid_convergence
+from heat2d import cli
+from heat2d.pipeline import adaptive as adapt
+from heat2d.pipeline import chain as pipeline
+from heat2d.fem.assembly import assemble
+from heat2d.post.estimate import grid_convergence
 
 # ---------------------------------------------------------------------------------------
 # Helpers

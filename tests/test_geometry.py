@@ -7,9 +7,9 @@ import pytest
 
 import heat2d
 from heat2d import GeometryError, NoHeatPathError
-from heat2d.assembly import assemble
-from heat2d.geometry import build_geometry
-from heat2d.mesh import build_mesh
+from heat2d.fem.assembly import assemble
+from heat2d.fem.geometry import build_geometry
+from heat2d.fem.mesh import build_mesh
 from tests.common import board
 
 MATERIALS = """

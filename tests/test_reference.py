@@ -38,11 +38,11 @@ import numpy as np
 import pytest
 
 import heat2d
-from heat2d.assembly import assemble
-from heat2d.geometry import build_geometry
-from heat2d.mesh import build_mesh
-from heat2d.results import compute_results
-from heat2d.solver import solve as solve_system
+from heat2d.fem.assembly import assemble
+from heat2d.fem.geometry import build_geometry
+from heat2d.fem.mesh import build_mesh
+from heat2d.post.results import compute_results
+from heat2d.fem.solver import solve as solve_system
 
 PATCH = 1e-10
 ROUND_OFF = 1e-9
@@ -397,8 +397,8 @@ def test_slab_nodal_values_exact_on_a_mesh_uniform_through_the_thickness():
     # the assembly in place of the mesher's (same model, same boundary entries).
     from dataclasses import replace
 
-    from heat2d.assembly import assemble
-    from heat2d.solver import solve
+    from heat2d.fem.assembly import assemble
+    from heat2d.fem.solver import solve
 
     face, t_surface = SLAB_FACES["fixed"]
     model = heat2d.parse(slab_text(face, {"power_density": QDOT}))

@@ -93,7 +93,7 @@ def test_bad_sweep_input_exits_2_before_anything_runs(model_file, tmp_path, caps
     if "--cluster" in args:
         pytest.importorskip("distributed")
     solved = []
-    monkeypatch.setattr(heat2d.pipeline, "build_geometry", lambda *a, **k: solved.append(1))
+    monkeypatch.setattr(heat2d.pipeline.chain, "build_geometry", lambda *a, **k: solved.append(1))
     out = tmp_path / "out"
     assert run_sweep(model_file, *args, "--out", str(out)) == 2
     err = capsys.readouterr().err.strip().splitlines()
@@ -186,10 +186,10 @@ def test_zip_pairs_the_lists_and_plots_one_line(tmp_path):
 
 def test_values_only_variants_share_one_mesh_and_one_factorization_per_matrix(monkeypatch):
     import heat2d.pipeline
-    import heat2d.solver
+    import heat2d.fem.solver
 
     meshes, factors = [], []
-    build_mesh, factor_init = heat2d.pipeline.build_mesh, heat2d.solver.Factor.__init__
+    build_mesh, factor_init = heat2d.pipeline.chain.build_mesh, heat2d.fem.solver.Factor.__init__
 
     def counting_mesh(geometry):
         meshes.append(geometry)
@@ -199,8 +199,8 @@ def test_values_only_variants_share_one_mesh_and_one_factorization_per_matrix(mo
         factors.append(1)
         factor_init(self, *args, **kwargs)
 
-    monkeypatch.setattr(heat2d.pipeline, "build_mesh", counting_mesh)
-    monkeypatch.setattr(heat2d.solver.Factor, "__init__", counting_factor)
+    monkeypatch.setattr(heat2d.pipeline.chain, "build_mesh", counting_mesh)
+    monkeypatch.setattr(heat2d.fem.solver.Factor, "__init__", counting_factor)
     model = heat2d.parse(SWEEP_BOARD)
     # h_air varies fastest in the grid, but the run order groups equal matrices: powers
     # only change the load vector, so 2 factorizations serve all 6 variants.

@@ -13,7 +13,8 @@ import math
 
 import pytest
 
-from heat2d import Heat2dError, cli, verify
+from heat2d import Heat2dError, cli
+from heat2d.verify import cases as verify
 
 PNG = b"\x89PNG\r\n\x1a\n"
 FIELDS = {"case", "check", "source", "unit", "reference", "computed", "error", "tolerance",
@@ -165,7 +166,7 @@ def test_error_estimate_case_fails_when_the_estimate_is_wrong(monkeypatch):
     # The case compares each figure with the run's own ± (Inc Eq. 4.19 as the truth). The
     # largest true/± there is about 0.35, so a third of the estimate must fail at that
     # figure; and a ± a hundred times too large must fail the check that it is informative.
-    from heat2d import estimate
+    from heat2d.post import estimate
 
     assert all(r["passed"] for r in verify.case_error_estimate())
     real = estimate.nested

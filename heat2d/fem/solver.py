@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .errors import SolveError
+from ..errors import SolveError
 
 if TYPE_CHECKING:
     import scipy.sparse as sp

@@ -14,12 +14,12 @@ from dataclasses import replace
 
 import numpy as np
 
-from .assembly import assemble
-from .geometry import build_geometry
-from .mesh import build_mesh
-from .model import Model
-from .results import Result, brief_figures, compute_results
-from .solver import solve
+from ..fem.assembly import assemble
+from ..fem.geometry import build_geometry
+from ..fem.mesh import build_mesh
+from ..fem.solver import solve
+from ..model import Model
+from ..post.results import Result, brief_figures, compute_results
 
 Progress = Callable[[str, str], None]
 """Called as progress(stage, event) with event "start", then "end" or "failed"."""
@@ -100,7 +100,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         solution = stage("solve", solve, system, method=method,
                          factor=old.factor if same else None)
     elif model.adaptive and adaptive:
-        from .adapt import adapt
+        from .adaptive import adapt
 
         geometry = stage("geometry", build_geometry, model, refine=refine)
         result = stage("adapt", adapt, geometry, method=method, resistances=resistances)
@@ -121,8 +121,8 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
 
 
 def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
-    from .estimate import REFINED_LIMIT, annotate, estimate, ladder, nested, probe_corrections
-    from .mesh import prolong, red_refine
+    from ..fem.mesh import prolong, red_refine
+    from ..post.estimate import REFINED_LIMIT, annotate, estimate, ladder, nested, probe_corrections
 
     if len(result.mesh.points) <= REFINED_LIMIT:
         mesh = red_refine(result.mesh)

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import MeshError
+from ..errors import MeshError
 from .geometry import Geometry, circle_sides
 
 EQUILATERAL_AREA = np.sqrt(3.0) / 4.0

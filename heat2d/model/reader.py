@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ModelError
+from ..errors import ModelError
 from .expr import CONSTANTS, FUNCTIONS, ExpressionError, evaluate
 
 LENGTH_UNITS: dict[str, float] = {"m": 1.0, "mm": 1e-3, "um": 1e-6}

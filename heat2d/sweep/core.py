@@ -37,10 +37,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, NamedTuple
 
-from . import __version__
-from .errors import Heat2dError, ModelError
-from .expr import ExpressionError, evaluate
-from .model import Model
+from ..errors import Heat2dError, ModelError
+from ..model import Model
+from ..model.expr import ExpressionError, evaluate
+from ..version import __version__
 
 CSV_NAME = "sweep.csv"
 PLOT_NAME = "sweep.png"
@@ -347,7 +347,7 @@ def _matrix_key(model: Model) -> tuple:
 
 def _run_order(variants: list[_Variant], refine: float) -> list[_Variant]:
     """Variants grouped by geometry, then by matrix, each group in grid order."""
-    from .pipeline import geometry_key
+    from ..pipeline import geometry_key
 
     groups: dict[Any, dict[Any, list[_Variant]]] = {}
     for v in variants:
@@ -433,7 +433,7 @@ def _solve(task: _Task, state: _Reuse):
 
     An adaptive model is never given ``reuse``: its mesh follows its own solution.
     """
-    from .pipeline import run
+    from ..pipeline import run
 
     adaptive = task.model.adaptive
     result = run(task.model, refine=task.refine, method=task.method,
@@ -444,7 +444,7 @@ def _solve(task: _Task, state: _Reuse):
 
 def _save(task: _Task, outcome: dict[str, Any], result) -> dict[str, Any]:
     """Write (or pack, for a remote worker) the variant's outputs into the outcome."""
-    from .writers import write
+    from ..post.writers import write
 
     try:
         if task.ship:
@@ -930,7 +930,7 @@ def plot_sweep(result: SweepResult, path: str | Path | None = None, *, fig=None)
 def add_sweep_arguments(parser: argparse.ArgumentParser) -> None:
     """Add the options of ``heat2d sweep`` (``model``, ``--set``, ``--refine`` and
     ``--debug`` are added by the command line for every subcommand)."""
-    from .solver import METHODS
+    from ..fem.solver import METHODS
 
     parser.add_argument("--vary", action="append", required=True,
                         metavar="NAME=V1,V2,...",
@@ -1007,8 +1007,9 @@ def _clock(seconds: float) -> str:
 def run_sweep_command(args: argparse.Namespace) -> int:
     """Run ``heat2d sweep``: 0 when every variant succeeded, 1 when some failed, 2 on bad
     input (nothing run or written)."""
-    from .cli import EXIT_BAD_INPUT, EXIT_FAILURE, EXIT_OK, _parse_sets
-    from .model import load
+    from ..cli.common import EXIT_BAD_INPUT, EXIT_FAILURE, EXIT_OK
+    from ..cli.common import parse_sets as _parse_sets
+    from ..model import load
 
     vary = parse_vary(args.vary)
     model = load(args.model, params=_parse_sets(args.set))

@@ -13,10 +13,10 @@ from typing import Any
 
 import numpy as np
 
-from . import __version__
-from .errors import ModelError
-from .geometry import circle_sides
-from .solver import Solution
+from ..errors import ModelError
+from ..fem.geometry import circle_sides
+from ..fem.solver import Solution
+from ..version import __version__
 
 CAUTION = (
     "Estimates only: a 2-D section of an idealised model. Confirm against measurements and "

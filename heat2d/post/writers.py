@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import Heat2dError
+from ..errors import Heat2dError
 from .results import Result
 
 VTU_COMPRESS_LIMIT = 20_000

@@ -15,8 +15,8 @@ import numpy as np
 import shapely
 from shapely.geometry import LineString, Polygon
 
-from .errors import GeometryError
-from .model import Boundary, Model, Shape
+from ..errors import GeometryError
+from ..model import Boundary, Model, Shape
 
 DEFAULT_SIZE_FRACTION = 1 / 50
 """Default target edge length as a fraction of the model's largest extent."""

@@ -15,7 +15,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from .errors import NoHeatPathError
+from ..errors import NoHeatPathError
 from .mesh import Mesh
 
 SIGMA = 5.670374419e-8

@@ -15,13 +15,13 @@ from typing import Any
 
 import numpy as np
 
-from .assembly import assemble
-from .errors import ModelError
-from .estimate import annotate, nested, probe_corrections, recovery_indicator
-from .geometry import Geometry
-from .mesh import build_mesh, prolong, red_refine, refine_mesh
-from .results import Result, brief_figures, compute_results, probe_weights
-from .solver import solve
+from ..errors import ModelError
+from ..fem.assembly import assemble
+from ..fem.geometry import Geometry
+from ..fem.mesh import build_mesh, prolong, red_refine, refine_mesh
+from ..fem.solver import solve
+from ..post.estimate import annotate, nested, probe_corrections, recovery_indicator
+from ..post.results import Result, brief_figures, compute_results, probe_weights
 
 MARK_SHARE = 0.5
 """Dörfler parameter: refine the fewest triangles that carry this share of Σ η²."""

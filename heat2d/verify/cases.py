@@ -553,10 +553,11 @@ def manufactured_errors(refine: float) -> tuple[float, float, float, int]:
     """L2 and energy-norm errors of the manufactured solution, the mesh size
     h = √(mean triangle area) and the node count, on the mesh refined by ``refine``."""
     import heat2d
-    from heat2d.assembly import assemble
-    from heat2d.geometry import build_geometry
-    from heat2d.mesh import build_mesh
-    from heat2d.solver import solve
+
+    from ..fem.assembly import assemble
+    from ..fem.geometry import build_geometry
+    from ..fem.mesh import build_mesh
+    from ..fem.solver import solve
 
     mesh = build_mesh(build_geometry(heat2d.parse(MMS_TEXT, source="verify"), refine=refine))
     system = assemble(mesh)
@@ -766,8 +767,8 @@ def plot_convergence(records: list[Record], path: str | Path | None = None):
 def write_outputs(records: list[Record], out_dir: str | Path, *,
                   seconds: float | None = None) -> list[Path]:
     """Write ``verify.json`` and ``verify.png`` into ``out_dir``, both or neither."""
-    from . import __version__
-    from .errors import Heat2dError
+    from ..errors import Heat2dError
+    from ..version import __version__
 
     out = Path(out_dir)
     try:

@@ -1,0 +1,118 @@
+"""The ``heat2d`` command: a thin layer over the library that prints and picks exit codes.
+
+Exit status: 0 success, 1 internal or solver failure, 2 bad input (nothing written),
+3 a temperature limit exceeded under ``run --strict`` (outputs are written).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+from collections.abc import Callable, Sequence
+
+from ..errors import Heat2dError, ModelError
+from ..version import __version__
+from .common import EXIT_BAD_INPUT, EXIT_FAILURE, UsageError
+from .run import cmd_check, cmd_run
+
+
+def cmd_verify(args: argparse.Namespace) -> int:
+    from ..verify import run_verify_command
+
+    return run_verify_command(args)
+
+
+def cmd_sweep(args: argparse.Namespace) -> int:
+    from ..sweep import run_sweep_command
+
+    return run_sweep_command(args)
+
+
+def _sweep_arguments(p: argparse.ArgumentParser) -> None:
+    from ..sweep import add_sweep_arguments
+
+    add_sweep_arguments(p)
+
+
+COMMANDS: dict[str, tuple[Callable[[argparse.Namespace], int], str]] = {
+    "run": (cmd_run, "solve a model and write VTU, summary.json, summary.txt and a PNG map"),
+    "check": (cmd_check, "validate and mesh a model without solving; list shapes and boundaries"),
+    "verify": (cmd_verify, "run the bundled verification cases against published solutions; "
+                           "write verify.json and verify.png"),
+    "sweep": (cmd_sweep, "solve every combination of parameter values; write sweep.csv and "
+                         "sweep.png"),
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from ..fem.solver import METHODS
+
+    parser = argparse.ArgumentParser(
+        prog="heat2d", description="Steady 2-D heat conduction for circuit-board cross-sections.")
+    parser.add_argument("--version", action="version", version=f"heat2d {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for name, (_, help_text) in COMMANDS.items():
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        if name == "verify":
+            from ..verify import add_verify_arguments
+
+            add_verify_arguments(p)
+            continue
+        p.add_argument("model", help="model file (TOML)")
+        p.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
+                       help="override a parameter of [params] (repeatable)")
+        p.add_argument("--refine", type=float, default=1.0, metavar="FACTOR",
+                       help="divide every target mesh size by FACTOR (mesh-convergence checks)")
+        p.add_argument("--debug", action="store_true", help="show tracebacks of failures")
+        if name == "sweep":
+            _sweep_arguments(p)
+        if name == "run":
+            p.add_argument("--out", metavar="DIR",
+                           help="output folder (default: MODELSTEM-results)")
+            p.add_argument("--method", choices=sorted(METHODS), default="auto",
+                           help="linear solver (default: auto)")
+            p.add_argument("--quiet", action="store_true", help="print nothing on success")
+            p.add_argument("--show-mesh", action="store_true",
+                           help="draw the mesh on the PNG temperature map")
+            p.add_argument("--no-estimate", action="store_true",
+                           help="skip the discretization error estimate (an extra solve on the "
+                           "refined mesh)")
+            p.add_argument("--strict", action="store_true",
+                           help="exit with status 3 when a shape exceeds its max_temperature")
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.refine <= 0:
+        print("error: --refine: must be > 0", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    try:
+        return COMMANDS[args.command][0](args)
+    except UsageError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except ModelError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"error: {exc.message()}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except Heat2dError as exc:
+        if args.debug:
+            traceback.print_exc()
+        print(f"error: {exc.message()}", file=sys.stderr)
+        return EXIT_FAILURE
+    except Exception as exc:  # report, never dump a traceback unless asked
+        if args.debug:
+            traceback.print_exc()
+        print(f"internal error: {type(exc).__name__}: {exc} (run with --debug for details)",
+              file=sys.stderr)
+        return EXIT_FAILURE
+
+
+def console() -> None:
+    """Entry point of the ``heat2d`` console script."""
+    sys.exit(main())

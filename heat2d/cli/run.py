@@ -1,0 +1,77 @@
+"""``heat2d run`` and ``heat2d check``: one model, solved or only meshed."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from .common import EXIT_LIMIT, EXIT_OK, Announcer, parse_sets
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    from ..model import load
+    from ..pipeline import run
+    from ..post.writers import format_summary, write
+
+    model = load(args.model, params=parse_sets(args.set))
+    progress = None if args.quiet else Announcer(sys.stderr)
+    result = run(model, method=args.method, refine=args.refine, progress=progress,
+                 estimate=not args.no_estimate)
+    out = Path(args.out) if args.out else Path(f"{model.stem}-results")
+    if progress:
+        progress("writing", "start")
+    try:
+        files = write(result, out, show_mesh=args.show_mesh)
+    finally:
+        if progress:
+            progress("writing", "end")
+    if not args.quiet:
+        print(format_summary(result.summary))
+        print("\nwrote " + ", ".join(str(f) for f in files))
+    exceeded = [n for n, lim in result.summary["limits"].items() if lim["exceeded"]]
+    if exceeded and args.strict:
+        print(f"limit exceeded: {', '.join(exceeded)}", file=sys.stderr)
+        return EXIT_LIMIT
+    return EXIT_OK
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from ..fem.geometry import build_geometry
+    from ..fem.mesh import build_mesh
+    from ..model import load
+    from ..pipeline.adaptive import check_budget
+
+    model = load(args.model, params=parse_sets(args.set))
+    geometry = build_geometry(model, refine=args.refine)
+    mesh = build_mesh(geometry)
+    check_budget(mesh)
+    unit = model.length_unit
+    areas = geometry.visible_area
+    claimed = geometry.claimed_length()
+    print(f"{model.source}: model is valid" + (f" ({model.title})" if model.title else ""))
+    print(f"length unit {unit}, " + ("axisymmetric (full revolution)" if model.axisymmetric
+                                      else f"depth {model.depth:g} {unit}"))
+    print(f"\n{'shape':<20} {'material':<14} {'visible area ' + unit + '²':>18} {'power':>12}")
+    for s, a in zip(model.shapes, areas, strict=True):
+        power = (f"{s.power:g} W" if s.power is not None else
+                 f"{s.power_density:g} W/m³" if s.power_density is not None else "")
+        print(f"{s.name:<20} {'(void)' if s.void else s.material:<14} {a:>18.6g} {power:>12}")
+    print(f"\n{'boundary':<20} {'kind':<21} {'on':<24} {'length ' + unit:>12}")
+    for bc in model.boundaries:
+        print(f"{bc.name:<20} {bc.label:<21} {str(bc.selector):<24} "
+              f"{claimed[bc.index]:>12.6g}")
+    print(f"{'(insulated)':<20} {'':<21} {'':<24} {geometry.insulated_length():>12.6g}")
+    if model.interfaces:
+        print(f"\n{'interface':<20} {'between':<30} {'R″ m²K/W':>10}")
+        for itf in model.interfaces:
+            print(f"{itf.name:<20} {itf.a + ' / ' + itf.b:<30} {itf.resistance:>10.3g}")
+    print(f"\n{'material':<20} {'kx':>9} {'ky':>9}  W/(m·K) at 25 °C; note")
+    for m in model.materials:
+        varies = " (varies with T)" if m.varies else ""
+        print(f"{m.name:<20} {m.kx:>9.4g} {m.ky:>9.4g}  {m.note}{varies}")
+    print(f"\nmesh: {len(mesh.points)} nodes, {len(mesh.triangles)} triangles, smallest angle "
+          f"{mesh.min_angle():.1f}°, target size {geometry.size:g} {unit}")
+    for w in geometry.warnings:
+        print(f"warning: {w}")
+    return EXIT_OK
