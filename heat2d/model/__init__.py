@@ -1,22 +1,9 @@
-"""Model text -> :class:`Model`: the schema (frozen dataclasses), its reader and the safe
-expression evaluator."""
+"""Model text -> :class:`Model`: the schema (frozen dataclasses, :mod:`.schema`), its
+reader (:mod:`.reader`, with :mod:`.lines`, :mod:`.base`, :mod:`.parts` and
+:mod:`.boundaries`) and the safe expression evaluator (:mod:`.expr`). Exported here:
+the entry points and the schema names the rest of heat2d uses."""
 
-from .reader import *  # noqa: F401,F403  (replaced by explicit exports below)
-from .reader import (  # noqa: F401
-    ABSOLUTE_ZERO_C,
-    BOUNDARY_KEYS,
-    MAX_MIN_ANGLE,
-    SIDES,
-    Boundary,
-    Group,
-    Interface,
-    Material,
-    MeshSettings,
-    Model,
-    Probe,
-    Selector,
-    Shape,
-    from_dict,
-    load,
-    parse,
-)
+from .reader import from_dict, load, parse
+from .schema import Boundary, Model, Shape
+
+__all__ = ["Boundary", "Model", "Shape", "from_dict", "load", "parse"]

@@ -1,0 +1,117 @@
+"""The reader's base: the keys each table allows, and the checks every section shares.
+
+:class:`BaseReader` turns a bad key, number, string, table, point or entry name into a
+:class:`~heat2d.errors.ModelError` naming the file, the entry and where known the line;
+numbers may be expressions over the model's parameters. The section readers
+(:mod:`.parts`, :mod:`.boundaries`, :mod:`.reader`) build on it.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from ..errors import ModelError
+from .expr import ExpressionError, evaluate
+from .lines import LineIndex
+
+_ALLOWED = {
+    "": {"model", "params", "materials", "shape", "stack", "boundary", "interface", "mesh",
+         "probe"},
+    "model": {"length_unit", "depth", "title", "axisymmetric"},
+    "material": {"k", "kx", "ky", "note"},
+    "shape": {"name", "material", "void", "rect", "polygon", "circle", "power",
+              "power_density", "mesh_size", "max_temperature", "vias", "repeat"},
+    "stack": {"name", "x", "y", "width", "layers", "mesh_size"},
+    "layer": {"name", "thickness", "material", "coverage", "fill", "power", "power_density",
+              "mesh_size", "max_temperature"},
+    "vias": {"drill", "plating", "pitch", "metal", "fill"},
+    "repeat": {"count", "dx", "dy"},
+    "interface": {"name", "between", "resistance"},
+    "boundary": {"name", "on", "temperature", "heat_flux", "h", "ambient", "emissivity",
+                 "surroundings"},
+    "mesh": {"size", "min_angle", "accuracy", "max_nodes"},
+    "probe": {"name", "at", "accuracy"},
+}
+
+
+class BaseReader:
+    """Checks values for one model source; ``names`` holds the parameters read so far."""
+
+    def __init__(self, source: str, index: LineIndex) -> None:
+        self.source = source
+        self.index = index
+        self.names: dict[str, float] = {}
+
+    # -- error helpers
+    def fail(self, entry: str, reason: str, line: int | None) -> ModelError:
+        return ModelError(reason, file=self.source, entry=entry, line=line)
+
+    def check_keys(self, table: dict[str, Any], allowed: str, entry: str,
+                   where: tuple[str, int]) -> None:
+        for key in table:
+            if key not in _ALLOWED[allowed]:
+                raise self.fail(entry, f"unknown key {key!r} (allowed: "
+                                f"{', '.join(sorted(_ALLOWED[allowed]))})",
+                                self.index.find(where[0], where[1], key))
+
+    def number(self, value: Any, entry: str, key: str, where: tuple[str, int], *,
+               low: float | None = None, high: float | None = None,
+               low_open: bool = False, what: str = "") -> float:
+        line = self.index.find(where[0], where[1], key.split("[")[0].split(".")[0])
+        if isinstance(value, bool) or not isinstance(value, int | float | str):
+            raise self.fail(entry, f"{key}: expected a number or an expression string, "
+                            f"got {type(value).__name__} {value!r}", line)
+        if isinstance(value, str):
+            try:
+                value = evaluate(value, self.names)
+            except ExpressionError as exc:
+                raise self.fail(entry, f"{key}: {exc}", line) from None
+        value = float(value)
+        if not math.isfinite(value):
+            raise self.fail(entry, f"{key}: must be a finite number, got {value}", line)
+        if low is not None and (value <= low if low_open else value < low):
+            rel = ">" if low_open else ">="
+            raise self.fail(entry, f"{key}: must be {rel} {low:g}{what}, got {value:g}", line)
+        if high is not None and value > high:
+            raise self.fail(entry, f"{key}: must be <= {high:g}{what}, got {value:g}", line)
+        return value
+
+    def table(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> dict[str, Any]:
+        if not isinstance(value, dict):
+            raise self.fail(entry, f"{key}: expected a table, got {type(value).__name__}",
+                            self.index.find(where[0], where[1], key))
+        return value
+
+    def string(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> str:
+        if not isinstance(value, str) or not value.strip():
+            raise self.fail(entry, f"{key}: expected a non-empty string, got {value!r}",
+                            self.index.find(where[0], where[1], key))
+        return value.strip()
+
+    def array_of_tables(self, data: dict[str, Any], key: str) -> list[dict[str, Any]]:
+        value = data.get(key, [])
+        if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+            raise self.fail(f"[[{key}]]", f"write each {key} as a [[{key}]] table",
+                            self.index.find(key))
+        return value
+
+    def point(self, p: Any, entry: str, key: str, where: tuple[str, int]) -> tuple[float, float]:
+        if not isinstance(p, list) or len(p) != 2:
+            raise self.fail(entry, f"{key}: expected [x, y], got {p!r}",
+                            self.index.find(*where, key.split("[")[0]))
+        return (self.number(p[0], entry, key, where), self.number(p[1], entry, key, where))
+
+    def named_entry(self, spec: dict[str, Any], table: str, i: int, seen: set[str]
+                    ) -> tuple[str, str, tuple[str, int]]:
+        """Check an array-of-tables entry's keys and unique name; (name, entry, where)."""
+        where = (table, i)
+        name = spec.get("name")
+        entry = f"{table} \"{name}\"" if isinstance(name, str) else f"{table} #{i + 1}"
+        self.check_keys(spec, table, entry, where)
+        name = self.string(name, entry, "name", where)
+        if name in seen:
+            raise self.fail(entry, f"name already used by another {table}",
+                            self.index.find(*where, "name"))
+        seen.add(name)
+        return name, entry, where

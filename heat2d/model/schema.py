@@ -1,0 +1,359 @@
+"""The checked model as frozen dataclasses, and the constants they share.
+
+:class:`Model` and its parts (:class:`Material`, :class:`Shape`, :class:`Selector`,
+:class:`Boundary`, :class:`Group`, :class:`Interface`, :class:`Probe`,
+:class:`MeshSettings`), the length units, sides and physical limits. Nothing here reads
+text: the reader builds these objects and registers its checker with
+:func:`use_checker`, so that :meth:`Model.edited` and the ``with_*`` methods check an
+edited copy of the data exactly as a file is checked, without this module importing the
+reader.
+"""
+
+from __future__ import annotations
+
+import copy
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import ModelError
+
+LENGTH_UNITS: dict[str, float] = {"m": 1.0, "mm": 1e-3, "um": 1e-6}
+"""Metres per model length unit."""
+SIDES = ("left", "right", "top", "bottom")
+MAX_MIN_ANGLE = 34.0
+"""Largest minimum angle (degrees) for which the mesher is known to terminate."""
+ABSOLUTE_ZERO_C = -273.15
+
+BOUNDARY_KEYS = {"temperature": "temperature", "heat_flux": "heat_flux", "h": "convection"}
+"""Model key that selects each boundary kind."""
+
+Table = tuple[tuple[float, float], ...]
+"""Conductivity against temperature: ((°C, W/(m·K)), ...), temperatures increasing."""
+
+
+@dataclass(frozen=True)
+class Material:
+    """A conductor: ``kx``, ``ky`` in W/(m·K) along the model axes.
+
+    A temperature-dependent axis has a table (piecewise linear in °C, held constant
+    beyond its ends); ``kx``/``ky`` then hold its value at 25 °C.
+    """
+
+    name: str
+    kx: float
+    ky: float
+    note: str = ""
+    kx_table: Table | None = None
+    ky_table: Table | None = None
+
+    @property
+    def isotropic(self) -> bool:
+        return self.kx == self.ky and self.kx_table == self.ky_table
+
+    @property
+    def varies(self) -> bool:
+        """True when k depends on temperature."""
+        return self.kx_table is not None or self.ky_table is not None
+
+    def k_at(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
+                                                     np.ndarray]:
+        """kx, ky and their slopes dk/dT at the given temperatures (°C)."""
+        out = []
+        for const, table in ((self.kx, self.kx_table), (self.ky, self.ky_table)):
+            if table is None:
+                out += [np.full_like(temperature, const), np.zeros_like(temperature)]
+            else:
+                t, k = np.array(table).T
+                slope = np.diff(k) / np.diff(t)
+                seg = np.clip(np.searchsorted(t, temperature) - 1, 0, len(t) - 2)
+                inside = (temperature >= t[0]) & (temperature <= t[-1])
+                out += [np.interp(temperature, t, k), np.where(inside, slope[seg], 0.0)]
+        return out[0], out[2], out[1], out[3]
+
+
+@dataclass(frozen=True)
+class Shape:
+    """One painted shape, in file order; ``kind`` is ``rect``, ``polygon`` or ``circle``.
+
+    ``points`` holds the outline for rect and polygon (rect: lower-left,
+    lower-right, upper-right, upper-left); ``circle`` holds (x, y, r).
+    """
+
+    name: str
+    index: int
+    kind: str
+    material: str | None
+    void: bool = False
+    points: tuple[tuple[float, float], ...] = ()
+    circle: tuple[float, float, float] | None = None
+    power: float | None = None
+    power_density: float | None = None
+    mesh_size: float | None = None
+    max_temperature: float | None = None
+    group: str | None = None
+    line: int | None = None
+
+    @property
+    def rect(self) -> tuple[float, float, float, float] | None:
+        """(x0, y0, x1, y1) for a rect shape, else None."""
+        if self.kind != "rect":
+            return None
+        (x0, y0), _, (x1, y1), _ = self.points
+        return (x0, y0, x1, y1)
+
+
+@dataclass(frozen=True)
+class Selector:
+    """Which exposed edges a boundary entry claims.
+
+    ``kind`` is ``side`` (``shape`` and ``side`` set), ``shape``, ``exterior`` or
+    ``box`` (``box`` = x0, y0, x1, y1).
+    """
+
+    kind: str
+    shape: str | None = None
+    side: str | None = None
+    box: tuple[float, float, float, float] | None = None
+
+    def __str__(self) -> str:
+        if self.kind == "side":
+            return f"{self.shape}.{self.side}"
+        if self.kind == "shape":
+            return str(self.shape)
+        if self.kind == "box":
+            return "box " + str(list(self.box or ()))
+        return self.kind
+
+
+@dataclass(frozen=True)
+class Boundary:
+    """A boundary condition on the edges its selector claims.
+
+    ``kind`` is one of :data:`BOUNDARY_KINDS`; values are in °C, W/m² and W/(m²·K).
+    """
+
+    name: str
+    index: int
+    selector: Selector
+    kind: str
+    temperature: float | None = None
+    heat_flux: float | None = None
+    h: float | None = None
+    ambient: float | None = None
+    emissivity: float | None = None
+    surroundings: float | None = None
+    line: int | None = None
+
+    @property
+    def label(self) -> str:
+        """The kind as reported, with radiation added where it applies."""
+        if self.emissivity is None or self.kind == "radiation":
+            return self.kind
+        return self.kind + "+radiation"
+
+
+@dataclass(frozen=True)
+class Group:
+    """Shapes reported and selected together: a layer stack or the copies of a repeat.
+
+    ``rect`` is the outline of a stack (x0, y0, x1, y1); None for a repeat.
+    """
+
+    name: str
+    kind: str
+    members: tuple[str, ...]
+    rect: tuple[float, float, float, float] | None = None
+    line: int | None = None
+
+
+@dataclass(frozen=True)
+class Interface:
+    """A thermal contact resistance R″ (m²·K/W) on the edges shared by ``a`` and ``b``,
+    each a shape or a group (a stack or repeated shape) name."""
+
+    name: str
+    index: int
+    a: str
+    b: str
+    resistance: float
+    line: int | None = None
+
+
+@dataclass(frozen=True)
+class Probe:
+    """A named point where the temperature is reported."""
+
+    name: str
+    x: float
+    y: float
+    line: int | None = None
+    accuracy: float | None = None
+
+
+@dataclass(frozen=True)
+class MeshSettings:
+    """Target edge length (model units; None = automatic), minimum angle (degrees), and
+    for adaptive refinement the accuracy wanted on the max temperature (K) and the node
+    budget."""
+
+    size: float | None = None
+    min_angle: float = 30.0
+    accuracy: float | None = None
+    max_nodes: int = 200_000
+
+
+@dataclass(frozen=True)
+class Model:
+    """A checked model, all lengths in ``length_unit``.
+
+    Build one with :func:`load` or :func:`parse`.
+    """
+
+    source: str
+    length_unit: str
+    depth: float
+    params: tuple[tuple[str, float], ...]
+    materials: tuple[Material, ...]
+    shapes: tuple[Shape, ...]
+    boundaries: tuple[Boundary, ...]
+    probes: tuple[Probe, ...]
+    mesh: MeshSettings
+    title: str = ""
+    axisymmetric: bool = False
+    groups: tuple[Group, ...] = ()
+    interfaces: tuple[Interface, ...] = ()
+    data: Mapping[str, Any] = field(default_factory=dict, compare=False, repr=False)
+    overrides: Mapping[str, float | str] = field(default_factory=dict, compare=False,
+                                                 repr=False)
+    paint_order: tuple[tuple[str, int], ...] = field(default=(), compare=False, repr=False)
+
+    # -- changing a model from Python: every change is checked like the text is.
+    def edited(self, change) -> Model:
+        """A new model from ``change(data)``, which edits a copy of the model's TOML data.
+
+        The result is checked exactly as a model file would be.
+        """
+        data = copy.deepcopy(dict(self.data))
+        order = list(self.paint_order)
+        change(data)
+        for table in ("shape", "stack"):                       # entries added by the change
+            known = {i for t, i in order if t == table}
+            order += [(table, i) for i in range(len(data.get(table, []))) if i not in known]
+        order = [(t, i) for t, i in order if i < len(data.get(t, []))]
+        return _checked(data, source=self.source, params=self.overrides, paint_order=order)
+
+    def with_params(self, **values: float | str) -> Model:
+        """The model with parameters of ``[params]`` set (numbers or expressions)."""
+        unknown = sorted(set(values) - {name for name, _ in self.params})
+        if unknown:
+            raise ModelError(f"no such parameter in [params] to set (known: "
+                             f"{', '.join(n for n, _ in self.params) or 'none'})",
+                             file=self.source, entry=f"param \"{unknown[0]}\"")
+        merged = {**self.overrides, **values}
+        return _checked(copy.deepcopy(dict(self.data)), source=self.source, params=merged,
+                        paint_order=self.paint_order)
+
+    def with_material(self, name: str, **spec: Any) -> Model:
+        """The model with material ``name`` added or replaced (keys as in [materials.NAME])."""
+        return self.edited(lambda d: d.setdefault("materials", {}).__setitem__(name, spec))
+
+    def with_shape(self, **spec: Any) -> Model:
+        """The model with a shape painted last (keys as in [[shape]])."""
+        return self.edited(lambda d: d.setdefault("shape", []).append(spec))
+
+    def with_boundary(self, **spec: Any) -> Model:
+        """The model with a boundary added, or replaced where the name exists."""
+        def change(d: dict[str, Any]) -> None:
+            items = d.setdefault("boundary", [])
+            names = [b.get("name") for b in items]
+            if spec.get("name") in names:
+                items[names.index(spec["name"])] = spec
+            else:
+                items.append(spec)
+        return self.edited(change)
+
+    def with_probe(self, name: str, at: tuple[float, float]) -> Model:
+        """The model with a probe added."""
+        return self.edited(lambda d: d.setdefault("probe", []).append(
+            {"name": name, "at": list(at)}))
+
+    @property
+    def unit_m(self) -> float:
+        """Metres per length unit."""
+        return LENGTH_UNITS[self.length_unit]
+
+    @property
+    def depth_m(self) -> float:
+        """Depth normal to the section, in metres (for an axisymmetric model: 1, the
+        assembly integrates 2πr instead)."""
+        return 1.0 if self.axisymmetric else self.depth * self.unit_m
+
+    @property
+    def adaptive(self) -> bool:
+        """True when the model asks for an accuracy (mesh or probe)."""
+        return self.mesh.accuracy is not None or any(p.accuracy for p in self.probes)
+
+    @property
+    def nonlinear(self) -> bool:
+        """True when k depends on temperature or a boundary radiates."""
+        return (any(m.varies for m in self.materials)
+                or any(b.emissivity is not None for b in self.boundaries))
+
+    def group(self, name: str) -> Group:
+        for g in self.groups:
+            if g.name == name:
+                return g
+        raise KeyError(name)
+
+    def members(self, name: str) -> tuple[Shape, ...]:
+        """The shapes a shape or group name stands for."""
+        for g in self.groups:
+            if g.name == name:
+                return tuple(self.shape(m) for m in g.members)
+        return (self.shape(name),)
+
+    @property
+    def stem(self) -> str:
+        return Path(self.source).stem if self.source != "<string>" else "model"
+
+    def material(self, name: str) -> Material:
+        for m in self.materials:
+            if m.name == name:
+                return m
+        raise KeyError(name)
+
+    def shape(self, name: str) -> Shape:
+        for s in self.shapes:
+            if s.name == name:
+                return s
+        raise KeyError(name)
+
+    def __repr__(self) -> str:
+        return (f"Model({self.source!r}, unit={self.length_unit}, shapes={len(self.shapes)}, "
+                f"materials={len(self.materials)}, boundaries={len(self.boundaries)}, "
+                f"probes={len(self.probes)})")
+
+
+Checker = Callable[..., "Model"]
+"""Checks model data and builds a :class:`Model`: ``check(data, *, source, params,
+paint_order)``, as :func:`heat2d.model.from_dict`."""
+
+_checker: Checker | None = None
+
+
+def use_checker(check: Checker) -> None:
+    """Set the function that :meth:`Model.edited` and the ``with_*`` methods check edited
+    model data with (the reader registers its ``from_dict`` when it is imported)."""
+    global _checker
+    _checker = check
+
+
+def _checked(data: Mapping[str, Any], *, source: str, params: Mapping[str, float | str],
+             paint_order: Sequence[tuple[str, int]]) -> Model:
+    if _checker is None:                                # only if the reader was never imported
+        raise RuntimeError("heat2d.model.reader is not loaded: no model checker")
+    return _checker(data, source=source, params=params, paint_order=paint_order)
