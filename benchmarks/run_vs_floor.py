@@ -11,7 +11,7 @@ Measured in the same run:
   clock from the model file to the last file written (VTU, summary.json,
   summary.txt, PNG), with heat2d's own stage timings and each writer's time;
 * floor: ``triangle.triangulate`` alone on the same planar straight-line graph
-  with the same switches as heat2d/mesh.py, a minimal vectorized P1 assembly
+  with the same switches as heat2d/fem/mesh.py, a minimal vectorized P1 assembly
   (orthotropic conduction, source, convection edges, Dirichlet elimination),
   and the fastest of ``spsolve``, ``splu`` and pyamg SA + CG at rtol 1e-10.
 

@@ -26,7 +26,7 @@ from .version import __version__  # noqa: E402
 
 
 def solve(model: Model, **options):
-    """Solve a model end to end and return its :class:`~heat2d.results.Result`.
+    """Solve a model end to end and return its :class:`~heat2d.post.results.Result`.
 
     The same as :func:`heat2d.pipeline.run`; see there for the options
     (``method``, ``refine``, ``reuse``, ``resistances``, ``progress``).
@@ -39,7 +39,17 @@ def solve(model: Model, **options):
 run = solve
 """The same as :func:`solve` (the command line's word)."""
 
+
+def __getattr__(name: str):
+    # heat2d.Result without loading the solver stack on ``import heat2d``.
+    if name == "Result":
+        from .post.results import Result
+
+        return Result
+    raise AttributeError(f"module 'heat2d' has no attribute {name!r}")
+
 __all__ = [
     "GeometryError", "Heat2dError", "MeshError", "Model", "ModelError", "NoHeatPathError",
+    "Result",
     "SolveError", "__version__", "from_dict", "load", "parse", "run", "solve",
 ]

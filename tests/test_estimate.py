@@ -1,7 +1,7 @@
 """Is the discretization error estimate honest?
 
 Every run reports an error beside each figure (max temperature, probes, shape means,
-boundary heat flows; heat2d/estimate.py). On problems whose exact answer is known in
+boundary heat flows; heat2d/post/estimate.py). On problems whose exact answer is known in
 closed form, the true error |computed − exact| must lie within the reported error, for
 every figure that can be compared. The problems are the published references of the test
 suite ("Inc" = Incropera, DeWitt, Bergman & Lavine, *Fundamentals of Heat and Mass

@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .results import Result
+if TYPE_CHECKING:                 # annotations only: results imports this module
+    from .results import Result
 
 LEVELS = 24
 ZOOM_FRACTION = 0.3

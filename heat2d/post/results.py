@@ -66,7 +66,7 @@ class Result:
 
     def save(self, out_dir, **options):
         """Write the same files as ``heat2d run`` into ``out_dir``; see
-        :func:`heat2d.writers.write`."""
+        :func:`heat2d.post.writers.write`."""
         from .writers import write
 
         return write(self, out_dir, **options)
@@ -163,7 +163,7 @@ def probe_weights(mesh, x: float, y: float) -> tuple[int, np.ndarray]:
 
 
 def brief_figures(solution: Solution) -> dict[str, Any]:
-    """Only what :func:`heat2d.estimate.figures` reads: max temperature, probes, shape
+    """Only what :func:`heat2d.post.estimate.figures` reads: max temperature, probes, shape
     max and mean, boundary heat (for the check solve of the error estimate)."""
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature

@@ -1,4 +1,4 @@
-"""Stage 7: :class:`~heat2d.results.Result` -> files.
+"""Stage 7: :class:`~heat2d.post.results.Result` -> files.
 
 Every writer puts one file into a scratch folder; :func:`write` moves them
 into place only when all have succeeded, so a failed run leaves nothing
@@ -13,11 +13,14 @@ import shutil
 import tempfile
 from collections.abc import Callable, Iterable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import Heat2dError
-from .results import Result
+
+if TYPE_CHECKING:                 # annotations only: results imports this module
+    from .results import Result
 
 VTU_COMPRESS_LIMIT = 20_000
 """VTU files of meshes with more nodes are written uncompressed (speed over size)."""
