@@ -24,13 +24,13 @@ def cmd_verify(args: argparse.Namespace) -> int:
 
 
 def cmd_sweep(args: argparse.Namespace) -> int:
-    from ..sweep import run_sweep_command
+    from .sweep import run_sweep_command
 
     return run_sweep_command(args)
 
 
 def _sweep_arguments(p: argparse.ArgumentParser) -> None:
-    from ..sweep import add_sweep_arguments
+    from .sweep import add_sweep_arguments
 
     add_sweep_arguments(p)
 
