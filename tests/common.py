@@ -1,6 +1,9 @@
-"""Small model texts shared by the tests."""
+"""Small model texts shared by the tests, and the verification models of heat2d verify."""
 
 from __future__ import annotations
+
+import heat2d
+from heat2d.verify import load_model
 
 BOARD = """
 [model]
@@ -53,3 +56,15 @@ def board(replace: dict[str, str] | None = None, extra: str = "") -> str:
         assert old in text, old
         text = text.replace(old, new)
     return text + extra
+
+
+def verify_model(name: str, **params: float | str) -> heat2d.Model:
+    """The model file of a verification case, heat2d/verify/models/NAME.toml (the file
+    ``heat2d verify`` runs; its header names the source), loaded with ``heat2d.load`` and
+    ``params`` overriding its [params]."""
+    return load_model(name, params)
+
+
+def verify_params(name: str, **params: float | str) -> dict[str, float]:
+    """The [params] of a verification model as numbers (overrides applied)."""
+    return dict(verify_model(name, **params).params)

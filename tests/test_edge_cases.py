@@ -14,7 +14,7 @@ import pytest
 import heat2d
 from heat2d import cli
 from heat2d.post.writers import format_summary
-from tests.test_estimate import pipe_wall, with_size
+from tests.test_estimate import pipe_wall, with_probes, with_size
 
 # A 1 mm alumina heater over a 3 mm aluminium plate, a contact resistance between them, and
 # 30 kW/m² into the heater's top; the plate's bottom is held at 40 °C. Across the contact
@@ -142,10 +142,9 @@ def test_a_probe_outside_the_mesh_but_inside_the_true_circle_is_read_within_its_
     angle = math.pi / 26
     x, y = 5.99 * math.cos(angle), 5.99 * math.sin(angle)
     exact = case.field(x, y)
-    text = (with_size(case.text, 1.5).split("\n[[probe]]")[0]
-            + f'\n[[probe]]\nname = "skin"\nat = [{x!r}, {y!r}]\n')
+    model = with_probes(with_size(case.model, 1.5), {"skin": (x, y)})
     for refine in (1.0, 2.0):
-        result = heat2d.solve(heat2d.parse(text), refine=refine, resistances=False)
+        result = heat2d.solve(model, refine=refine, resistances=False)
         value, error = result.summary["probes"]["skin"], result.summary["probe_errors"]["skin"]
         assert abs(value - exact) <= error
 

@@ -29,6 +29,7 @@ from scipy.optimize import brentq
 import heat2d
 from heat2d import GeometryError, ModelError, cli
 from heat2d.fem.geometry import build_geometry
+from tests.common import verify_model, verify_params
 
 ROUND_OFF = 1e-9
 SIGMA = 5.670374419e-8   # Stefan–Boltzmann, W/(m²·K⁴): CODATA 2018 value (exact in SI since 2019)
@@ -48,8 +49,11 @@ k = 385
 """
 
 
-def run(text: str, refine: float = 1.0, **params):
-    return heat2d.run(heat2d.parse(text, params=params or None), refine=refine)
+def run(text: str | heat2d.Model, refine: float = 1.0, **params):
+    """Solve a model text (with ``params`` set) or a model."""
+    model = (text.with_params(**params) if isinstance(text, heat2d.Model)
+             else heat2d.parse(text, params=params or None))
+    return heat2d.run(model, refine=refine)
 
 
 def heat(result, boundary: str) -> float:
@@ -421,60 +425,42 @@ temperature = 20
 # ---------------------------------------------------------------------------------------
 # 3. Interface (contact) resistance
 
-WALL = """
-[model]
-length_unit = "mm"
-depth = 20
-
-[materials.a]
-k = 0.8
-
-[materials.b]
-k = 15
-
-[[shape]]
-name = "A"
-material = "a"
-rect = { x = 0, y = 0, width = 4, height = 3 }
-
-[[shape]]
-name = "B"
-material = "b"
-rect = { x = 4, y = 0, width = 6, height = 3 }
-
-[[interface]]
-name = "joint"
-between = BETWEEN
-resistance = 2.75e-4
-
-[[boundary]]
-name = "hot"
-on = "A.left"
-temperature = 90
-
-[[boundary]]
-name = "cold"
-on = "B.right"
-"""
-# R″ = 2.75e-4 m²K/W: aluminium in air, 10 µm roughness (reference-facts.md problem 12,
-# Inc Tables 3.1–3.2, from memory).
-R_TC, L_A, K_A, L_B, K_B, AREA_M2 = 2.75e-4, 4e-3, 0.8, 6e-3, 15.0, 3e-3 * 20e-3
+# The two slabs and the contact of the composite_wall case of heat2d verify (slab A 4 mm
+# of k = 0.8, slab B 6 mm of k = 15 W/(m·K), 3 mm high; R″ = 2.75e-4 m²K/W: aluminium in
+# air, 10 µm roughness, reference-facts.md problem 12, Inc Tables 3.1–3.2, from memory),
+# 20 mm deep, the hot face held at 90 °C.
+WALL_PARAMS = verify_params("composite_wall")
+R_TC, K_A, K_B = WALL_PARAMS["r_tc"], WALL_PARAMS["k_a"], WALL_PARAMS["k_b"]
+L_A, L_B = WALL_PARAMS["l_a"] * 1e-3, WALL_PARAMS["l_b"] * 1e-3                  # m
+AREA_M2 = WALL_PARAMS["height"] * 1e-3 * 20e-3
+T_WALL_HOT = WALL_PARAMS["t_hot"]
 
 
-@pytest.mark.parametrize("cold, h", [("temperature = 30", None),
-                                     ("h = 50\nambient = 25", 50.0)])
-@pytest.mark.parametrize("between", ['["A", "B"]', '["B", "A"]'])
+def wall(between: list[str], **cold) -> heat2d.Model:
+    """The composite wall, 20 mm deep on the default mesh of a 10 mm model (10/50 mm),
+    the contact ``between`` the two slabs, the hot face at 90 °C and ``cold`` the keys of
+    the cold face."""
+    model = verify_model("composite_wall", depth=20, size=0.2).edited(
+        lambda d: d["interface"][0].__setitem__("between", between))
+    model = model.with_boundary(name="hot", on="A.left", temperature=T_WALL_HOT)
+    return model.with_boundary(name="cold", on="B.right", **cold)
+
+
+@pytest.mark.parametrize("cold, h", [({"temperature": 30}, None),
+                                     ({"h": 50, "ambient": 25}, 50.0)])
+@pytest.mark.parametrize("between", [["A", "B"], ["B", "A"]])
 def test_composite_wall_with_contact_resistance(cold, h, between):
     # Inc §3.1 (reference-facts.md problem 1): q″ = ΔT / [L_A/k_A + R″ + L_B/k_B (+ 1/h)],
     # T piecewise linear with a jump q″R″ at the contact.
-    r = run(WALL.replace("BETWEEN", between) + cold)
+    assert T_WALL_HOT == 90.0
+    r = run(wall(between, **cold))
     t_far = 30.0 if h is None else 25.0
     total = L_A / K_A + R_TC + L_B / K_B + (0.0 if h is None else 1 / h)
     q = (90.0 - t_far) / total
     assert heat(r, "cold") == pytest.approx(q * AREA_M2, rel=ROUND_OFF)
     jump = q * R_TC
-    sign = 1.0 if between.startswith('["A"') else -1.0        # reported from a to b
-    itf = r.summary["interfaces"]["joint"]
+    sign = 1.0 if between[0] == "A" else -1.0                 # reported from a to b
+    itf = r.summary["interfaces"]["contact"]
     assert itf["heat_w"] == pytest.approx(sign * q * AREA_M2, rel=ROUND_OFF)
     assert itf["mean_jump"] == pytest.approx(sign * jump, rel=ROUND_OFF)
     assert itf["max_abs_jump"] == pytest.approx(jump, rel=ROUND_OFF)
@@ -626,26 +612,31 @@ def test_interface_with_a_group_covers_every_member():
 
 
 def test_interface_errors():
-    apart = WALL.replace("BETWEEN", '["A", "B"]').replace("x = 4, y = 0", "x = 5, y = 0")
-    with pytest.raises(GeometryError, match=r'interface "joint": .A. and .B. share no'):
-        run(apart + "temperature = 30")
-    for between, message in (('["A", "C"]',
-                              r"interface \"joint\": between: no shape or group 'C'"),
-                             ('["A", "A"]', r"between: needs two different shapes"),
-                             ('["A"]', r"between: expected two shape or group names")):
+    apart = wall(["A", "B"], temperature=30).edited(
+        lambda d: d["shape"][1]["rect"].__setitem__("x", 5))
+    with pytest.raises(GeometryError, match=r'interface "contact": .A. and .B. share no'):
+        run(apart)
+    for between, message in ((["A", "C"],
+                              r"interface \"contact\": between: no shape or group 'C'"),
+                             (["A", "A"], r"between: needs two different shapes"),
+                             (["A"], r"between: expected two shape or group names")):
         with pytest.raises(ModelError, match=message):
-            heat2d.parse(WALL.replace("BETWEEN", between) + "temperature = 30")
+            wall(between, temperature=30)
     with pytest.raises(ModelError, match=r"resistance: must be > 0"):
-        heat2d.parse(WALL.replace("BETWEEN", '["A", "B"]').replace("2.75e-4", "0")
-                     + "temperature = 30")
+        wall(["A", "B"], temperature=30).with_params(r_tc=0)
 
 
 # ---------------------------------------------------------------------------------------
 # 4. Temperature-dependent conductivity
 
 # reference-facts.md problem 10 (Kirchhoff transform; Özişik, Heat Conduction, from memory):
-# k = k0 (1 + βT), U = T + βT²/2 is harmonic.
-K0, BETA, T_HOT, T_COLD, L_SLAB = 0.3, 0.004, 100.0, 20.0, 1.6e-3
+# k = k0 (1 + βT), U = T + βT²/2 is harmonic. The slab of the kirchhoff_slab case of
+# heat2d verify: k0 = 0.3, β = 0.004/°C, faces at 100 and 20 °C, 1.6 mm thick.
+SLAB_PARAMS = verify_params("kirchhoff_slab")
+K0, BETA = SLAB_PARAMS["k0"], SLAB_PARAMS["beta"]
+T_HOT, T_COLD = SLAB_PARAMS["t_hot"], SLAB_PARAMS["t_cold"]
+L_SLAB = SLAB_PARAMS["thickness"] * 1e-3
+SLAB_SIZE = 0.2          # [mesh] size of these tests, mm
 
 
 def kirchhoff_t(u: np.ndarray) -> np.ndarray:
@@ -657,33 +648,13 @@ def kirchhoff_u(t: float) -> float:
 
 
 # k linear in T is a 2-point table exactly; the ends (0 and 200 °C) cover 20..100 °C.
-K_TABLE = f"[[0, {K0}], [200, {K0 * (1 + BETA * 200)}]]"
-SLAB = """
-[model]
-length_unit = "mm"
-depth = 1
+K_TABLE = [[0, K0], [200, K0 * (1 + BETA * 200)]]
 
-[materials.resin]
-KEYS
 
-[[shape]]
-name = "slab"
-material = "resin"
-rect = { x = 0, y = 0, width = 1, height = 1.6 }
-
-[mesh]
-size = 0.2
-
-[[boundary]]
-name = "hot"
-on = "slab.bottom"
-temperature = 100
-
-[[boundary]]
-name = "cold"
-on = "slab.top"
-temperature = 20
-"""
+def slab(**material) -> heat2d.Model:
+    """The kirchhoff_slab model on a 0.2 mm mesh with its resin's conductivity keys
+    replaced by ``material``."""
+    return verify_model("kirchhoff_slab", size=SLAB_SIZE).with_material("resin", **material)
 
 
 def test_kirchhoff_reference_values():
@@ -694,10 +665,10 @@ def test_kirchhoff_reference_values():
     assert round(float(mid), 2) == 62.57
 
 
-@pytest.mark.parametrize("keys", [f"k = {K_TABLE}", f"kx = 2.0\nky = {K_TABLE}"])
+@pytest.mark.parametrize("keys", [{"k": K_TABLE}, {"kx": 2.0, "ky": K_TABLE}],
+                         ids=["k", "kx-ky"])
 def test_k_of_t_slab(keys):
-    text = SLAB.replace("KEYS", keys)
-    model = heat2d.parse(text)
+    model = slab(**keys)
     m = model.material("resin")
     assert m.varies
     assert m.ky == pytest.approx(K0 * (1 + BETA * 25), rel=1e-14)   # value at 25 °C
@@ -717,13 +688,13 @@ def test_k_of_t_slab(keys):
         # Nodal values are not exact: k(T̄_e)∇T_h differs from the interpolated ∇U by
         # (β k0 / 2) Σ (T_i − T̄_e)² ∇φ_i, so the nodal error scales as β (ΔT_element)²;
         # bound: β (h ΔT / L)² with h the target size (0.4 K at h = 0.2 mm).
-        h = 0.2 / refine
+        h = SLAB_SIZE / refine
         assert errors[-1] < BETA * (h * (T_HOT - T_COLD) / 1.6) ** 2
         history = r.summary["solver"]["history"]
         changes = [it["max_change_k"] for it in history]
         assert len(changes) >= 2 and all(b < a for a, b in zip(changes, changes[1:], strict=False))
         assert changes[-1] < NEWTON_TOL_K
-    print(f"\nk(T) slab ({keys.split()[0]}): max nodal error {errors[0]:.2e} K (h = 0.2 mm), "
+    print(f"\nk(T) slab ({next(iter(keys))}): max nodal error {errors[0]:.2e} K (h = 0.2 mm), "
           f"{errors[1]:.2e} K (h = 0.1 mm), ratio {errors[0] / errors[1]:.2f}")
     # O(h²): halving h should divide the error by ~4; unstructured meshes do not halve
     # every element exactly, so ask for 2.5.
@@ -733,8 +704,7 @@ def test_k_of_t_slab(keys):
 def test_k_of_t_constant_beyond_the_table():
     # Beyond its ends a table holds its end value: here k = 2 everywhere in 20..100 °C,
     # so the slab is linear (Fourier, Inc §3.1): q = k ΔT / L.
-    text = SLAB.replace("KEYS", "k = [[-60, 1.0], [0, 2.0]]")
-    r = run(text)
+    r = run(slab(k=[[-60, 1.0], [0, 2.0]]))
     assert heat(r, "cold") == pytest.approx(2.0 * 80 / L_SLAB * 1e-6, rel=ROUND_OFF)
     assert r.summary["solver"]["nonlinear"] is True
 
@@ -785,15 +755,15 @@ temperature = {T_COLD}
 
 
 @pytest.mark.parametrize("table, message", [
-    ("[[100, 1], [50, 2]]", r"table temperatures must increase, got 100 then 50 °C"),
-    ("[[0, 1], [0, 2]]", r"table temperatures must increase"),
-    ("[[0, 1]]", r"a table needs at least two"),
-    ("[[0, 1], [50, -2]]", r"conductivity: must be > 0"),
-    ("[[0, 1, 2], [50, 2]]", r"expected \[°C, W/\(m·K\)\]"),
-])
+    ([[100, 1], [50, 2]], r"table temperatures must increase, got 100 then 50 °C"),
+    ([[0, 1], [0, 2]], r"table temperatures must increase"),
+    ([[0, 1]], r"a table needs at least two"),
+    ([[0, 1], [50, -2]], r"conductivity: must be > 0"),
+    ([[0, 1, 2], [50, 2]], r"expected \[°C, W/\(m·K\)\]"),
+], ids=["decreasing", "repeated", "one-point", "negative", "three-columns"])
 def test_bad_k_table(table, message):
     with pytest.raises(ModelError, match=r'material "resin": k.*' + message):
-        heat2d.parse(SLAB.replace("KEYS", f"k = {table}"))
+        slab(k=table)
 
 
 # ---------------------------------------------------------------------------------------
@@ -801,47 +771,30 @@ def test_bad_k_table(table, message):
 
 # reference-facts.md problem 11 (Inc §1.2.3): k = 1, L = 10 mm, T1 = 400 K, ε = 0.9,
 # T_sur = 300 K; energy balance at the face k(T1 − Ts)/L = εσ(Ts⁴ − Tsur⁴) [+ h(Ts − T∞)].
-RAD_K, RAD_L, RAD_T1, RAD_EPS, RAD_TSUR = 1.0, 0.01, 400.0, 0.9, 300.0
-RAD_SLAB = f"""
-[model]
-length_unit = "mm"
-depth = 1
+# The slab of the radiating_slab case of heat2d verify: 2 mm wide, 1 mm deep, [mesh]
+# size 5 mm; radiating_slab.toml radiates only, radiating_slab_h.toml also convects.
+RAD = verify_params("radiating_slab")
+RAD_K, RAD_L, RAD_T1 = RAD["k"], RAD["thickness"] * 1e-3, RAD["t1_k"]
+RAD_EPS, RAD_TSUR = RAD["eps"], RAD["t_sur_k"]
 
-[materials.m]
-k = {RAD_K}
 
-[[shape]]
-name = "slab"
-material = "m"
-rect = {{ x = 0, y = 0, width = 2, height = 10 }}
-
-[mesh]
-size = 5
-
-[[boundary]]
-name = "base"
-on = "slab.bottom"
-temperature = {RAD_T1 - KELVIN}
-
-[[boundary]]
-name = "face"
-on = "slab.top"
-"""
+def radiating_slab(h: float | None, t_air: float | None) -> heat2d.Model:
+    """The slab radiating to RAD_TSUR, convecting with ``h`` to air at ``t_air`` (K)."""
+    if h is None:
+        return verify_model("radiating_slab")
+    if t_air is None:           # surroundings default to the convection ambient
+        return verify_model("radiating_slab_h", h=h, t_air_k=RAD_TSUR)
+    # air and surroundings at different temperatures
+    return verify_model("radiating_slab_h", h=h, t_air_k=t_air).edited(
+        lambda d: d["boundary"][1].__setitem__("surroundings", RAD_TSUR - KELVIN))
 
 
 @pytest.mark.parametrize("h, t_air, quoted", [(None, None, (392.074, 792.6)),
                                                (10.0, None, (384.524, 1547.6)),
                                                (10.0, 350.0, None)])
 def test_radiating_face(h, t_air, quoted):
-    t_sur_c = RAD_TSUR - KELVIN
+    model = radiating_slab(h, t_air)
     t_air = t_air or RAD_TSUR
-    if h is None:
-        face = f"emissivity = {RAD_EPS}\nsurroundings = {t_sur_c}\n"
-    elif t_air == RAD_TSUR:     # surroundings default to the convection ambient
-        face = f"h = {h}\nambient = {t_sur_c}\nemissivity = {RAD_EPS}\n"
-    else:                       # air and surroundings at different temperatures
-        face = (f"h = {h}\nambient = {t_air - KELVIN}\nemissivity = {RAD_EPS}\n"
-                f"surroundings = {t_sur_c}\n")
     hh = h or 0.0
 
     def balance(ts):
@@ -853,7 +806,7 @@ def test_radiating_face(h, t_air, quoted):
     if quoted:      # reference values, to the digits quoted there
         assert ts == pytest.approx(quoted[0], abs=5e-4)
         assert q == pytest.approx(quoted[1], abs=0.05)
-    r = run(RAD_SLAB + face)
+    r = run(model)
     s = r.summary
     assert s["boundaries"]["face"]["kind"] == ("radiation" if h is None
                                                else "convection+radiation")
@@ -872,14 +825,15 @@ def test_radiating_face_with_imposed_flux():
     # A face heated by q_in that also radiates, base held at 25 °C (Inc §1.2.3 balance):
     # q_in = k(Ts − T1)/L + εσ(Ts⁴ − Tsur⁴).
     q_in, t1, tsur = 2000.0, 25.0 + KELVIN, 25.0 + KELVIN
-    text = RAD_SLAB.replace(f"temperature = {RAD_T1 - KELVIN}", "temperature = 25") + (
-        f"heat_flux = {q_in}\nemissivity = {RAD_EPS}\nsurroundings = 25\n")
+    model = verify_model("radiating_slab").with_boundary(
+        name="base", on="slab.bottom", temperature=25).with_boundary(
+        name="face", on="slab.top", heat_flux=q_in, emissivity=RAD_EPS, surroundings=25)
 
     def balance(ts):
         return q_in - RAD_K * (ts - t1) / RAD_L - RAD_EPS * SIGMA * (ts**4 - tsur**4)
 
     ts = brentq(balance, t1, t1 + q_in * RAD_L / RAD_K, xtol=1e-12, rtol=1e-15)
-    r = run(text)
+    r = run(model)
     assert r.summary["boundaries"]["face"]["kind"] == "heat_flux+radiation"
     assert r.summary["boundaries"]["face"]["mean_temperature"] + KELVIN == pytest.approx(
         ts, abs=1e-6)                                   # as in test_radiating_face
@@ -889,16 +843,16 @@ def test_radiating_face_with_imposed_flux():
 
 
 @pytest.mark.parametrize("face, message", [
-    ("emissivity = 0.9\n", r"radiation needs surroundings"),
-    ("emissivity = 1.2\nsurroundings = 20\n", r"emissivity: must be <= 1"),
-    ("emissivity = 0\nsurroundings = 20\n", r"emissivity: must be > 0"),
-    ("temperature = 20\nemissivity = 0.9\nsurroundings = 20\n",
+    ({"emissivity": 0.9}, r"radiation needs surroundings"),
+    ({"emissivity": 1.2, "surroundings": 20}, r"emissivity: must be <= 1"),
+    ({"emissivity": 0, "surroundings": 20}, r"emissivity: must be > 0"),
+    ({"temperature": 20, "emissivity": 0.9, "surroundings": 20},
      r"emissivity: a fixed-temperature edge cannot radiate"),
-    ("h = 5\nambient = 20\nsurroundings = 20\n", r"surroundings needs emissivity"),
-])
+    ({"h": 5, "ambient": 20, "surroundings": 20}, r"surroundings needs emissivity"),
+], ids=["no-surroundings", "above-1", "zero", "fixed-temperature", "no-emissivity"])
 def test_bad_radiation(face, message):
     with pytest.raises(ModelError, match=r'boundary "face": ' + message):
-        heat2d.parse(RAD_SLAB + face)
+        verify_model("radiating_slab").with_boundary(name="face", on="slab.top", **face)
 
 
 # ---------------------------------------------------------------------------------------
@@ -1037,33 +991,24 @@ def test_limits_in_summary_and_strict_exit(tmp_path, capsys):
 # ---------------------------------------------------------------------------------------
 # 8. Axisymmetric models
 
-R0, ROD_H, ROD_K = 2.0, 1.0, 1.0               # mm, mm, W/(m·K)
-QDOT = 4 * ROD_K * 1.0 / (R0 * 1e-3) ** 2      # reference-facts.md problem 4: ΔT_max = 1.0 K
-ROD = f"""
-[model]
-length_unit = "mm"
-axisymmetric = true
-
-[materials.m]
-k = {ROD_K}
-
-[[shape]]
-name = "rod"
-material = "m"
-rect = {{ x = 0, y = 0, width = {R0}, height = {ROD_H} }}
-power_density = {QDOT}
-
-[mesh]
-size = 0.25
-
-[[boundary]]
-name = "skin"
-on = "rod.right"
-"""
+# The rod of the rod_generation case of heat2d verify (r0 = 2 mm, 1 mm long, k = 1
+# W/(m·K); q̇ = 4kΔT/r0² for ΔT_max = 1.0 K, reference-facts.md problem 4) on a 0.25 mm
+# mesh, its skin (the outer side) chosen per test.
+ROD = verify_params("rod_generation")
+R0, ROD_H, ROD_K, QDOT = ROD["r0"], ROD["height"], ROD["k"], ROD["qdot"]  # mm, mm, W/(m·K), W/m³
+ROD_SIZE = 0.25
 
 
-@pytest.mark.parametrize("skin, t_surface", [("temperature = 20", 20.0),
-                                             ("h = 1000\nambient = 19", 19.0 + 1.0)])
+def rod(on: str = "rod.right", **skin) -> heat2d.Model:
+    """The rod with the boundary "skin" ``on`` its outer side (or elsewhere), ``skin``
+    its keys."""
+    return verify_model("rod_generation", size=ROD_SIZE).with_boundary(name="skin", on=on,
+                                                                       **skin)
+
+
+@pytest.mark.parametrize("skin, t_surface", [({"temperature": 20}, 20.0),
+                                             ({"h": 1000, "ambient": 19}, 19.0 + 1.0)],
+                         ids=["temperature", "convection"])
 def test_solid_cylinder_with_generation(skin, t_surface):
     # Inc §3.5.2: T(r) = Ts + q̇ r0² (1 − r²/r0²)/(4k); with convection Ts = T∞ + q̇ r0/(2h)
     # (here 1e6 × 0.002 / 2000 = 1 K). Mean over the volume: Ts + q̇ r0²/(8k).
@@ -1072,7 +1017,7 @@ def test_solid_cylinder_with_generation(skin, t_surface):
     assert dt_max == pytest.approx(1.0, rel=1e-15)
     errors = []
     for refine in (1, 2):
-        r = run(ROD + skin, refine=refine)
+        r = run(rod(**skin), refine=refine)
         s = r.summary
         # ∫ φ_i 2πr dA is integrated exactly, so the generated power is exact.
         assert s["energy_balance"]["generated_w"] == pytest.approx(power, rel=1e-12)
@@ -1081,14 +1026,14 @@ def test_solid_cylinder_with_generation(skin, t_surface):
         errors.append(abs(centre - (t_surface + dt_max)))
         # P1 with the 2πr̄ weights: O(h²); bound (h/r0)² ΔT_max (constant 1), 1.6 % at
         # h = 0.25 mm.
-        h = 0.25 / refine
+        h = ROD_SIZE / refine
         assert errors[-1] < (h / R0) ** 2 * dt_max
         assert s["shapes"]["rod"]["mean"] == pytest.approx(t_surface + dt_max / 2,
                                                           abs=(h / R0) ** 2 * dt_max)
         # The axis (x = 0) is a symmetry line: not exposed, not insulated surface.
         assert s["axis_length"] == pytest.approx(ROD_H, rel=1e-12)
         assert s["insulated_length"] == pytest.approx(2 * R0, rel=1e-12)
-    print(f"\nsolid cylinder ({skin.split()[0]}): centre error {errors[0]:.2e} K (h = 0.25 mm), "
+    print(f"\nsolid cylinder ({next(iter(skin))}): centre error {errors[0]:.2e} K (h = 0.25 mm), "
           f"{errors[1]:.2e} K (h = 0.125 mm)")
     assert errors[1] < errors[0] / 2.5                # O(h²), see test_k_of_t_slab
 
@@ -1099,22 +1044,22 @@ def test_radiating_cylinder_surface():
     # The total is exact (exact source weights, energy balance); the surface nodes carry
     # the O(h²) error of the curved interior profile, bounded as in
     # test_solid_cylinder_with_generation by (h/r0)² ΔT_max (measured ~1e-3 K).
-    r = run(ROD + "emissivity = 0.8\nsurroundings = 20\n")
+    r = run(rod(emissivity=0.8, surroundings=20))
     flux = QDOT * R0 * 1e-3 / 2
     ts = ((flux / (0.8 * SIGMA)) + (20 + KELVIN) ** 4) ** 0.25 - KELVIN
     surface = np.isclose(r.mesh.points[:, 0], R0)
-    assert np.abs(r.temperature[surface] - ts).max() < (0.25 / R0) ** 2 * 1.0
+    assert np.abs(r.temperature[surface] - ts).max() < (ROD_SIZE / R0) ** 2 * 1.0
     assert heat(r, "skin") == pytest.approx(QDOT * math.pi * (R0 * 1e-3) ** 2 * ROD_H * 1e-3,
                                             rel=ROUND_OFF)
 
 
 def test_axis_is_not_a_surface():
     # "exterior" takes every exposed edge but the axis: outer side, top and bottom.
-    r = run(ROD.replace('on = "rod.right"', 'on = "exterior"') + "h = 1000\nambient = 19\n")
+    r = run(rod(on="exterior", h=1000, ambient=19))
     assert r.summary["boundaries"]["skin"]["length"] == pytest.approx(ROD_H + 2 * R0, rel=1e-12)
     assert r.summary["insulated_length"] == pytest.approx(0.0, abs=1e-12)
     # The side on the axis cannot carry a boundary.
-    model = heat2d.parse(ROD.replace('on = "rod.right"', 'on = "rod.left"') + "temperature = 0")
+    model = rod(on="rod.left", temperature=0)
     with pytest.raises(GeometryError, match=r'on = .rod.left. selects no exposed edge'):
         build_geometry(model)
 
@@ -1159,25 +1104,23 @@ temperature = 30
 
 
 @pytest.mark.parametrize("change, message", [
-    ({"x = 0, y = 0": "x = -0.5, y = 0"}, r'shape "rod": an axisymmetric model needs x >= 0'),
-    ({"axisymmetric = true": "axisymmetric = true\ndepth = 5"},
+    (lambda d: d["shape"][0]["rect"].__setitem__("x", -0.5),
+     r'shape "rod": an axisymmetric model needs x >= 0'),
+    (lambda d: d["model"].__setitem__("depth", 5),
      r"depth: an axisymmetric model is solved for the full revolution and takes no depth"),
-    ({"axisymmetric = true": 'axisymmetric = "yes"'}, r"axisymmetric: expected true or false"),
-])
+    (lambda d: d["model"].__setitem__("axisymmetric", "yes"),
+     r"axisymmetric: expected true or false"),
+], ids=["negative-x", "depth", "not-a-bool"])
 def test_bad_axisymmetric_model(change, message):
-    text = ROD + "temperature = 20"
-    for old, new in change.items():
-        assert old in text
-        text = text.replace(old, new)
+    model = rod(temperature=20)
     with pytest.raises(ModelError, match=message):
-        heat2d.parse(text)
+        model.edited(change)
 
 
 def test_circle_crossing_the_axis_is_an_error():
-    text = ROD + 'temperature = 20\n[[shape]]\nname = "bead"\nmaterial = "m"\n' \
-        "circle = { x = 0.5, y = 0.5, r = 0.6 }\n"
     with pytest.raises(ModelError, match=r'shape "bead": an axisymmetric model needs x >= 0'):
-        heat2d.parse(text)
+        rod(temperature=20).with_shape(name="bead", material="m",
+                                       circle={"x": 0.5, "y": 0.5, "r": 0.6})
 
 
 def test_axisymmetric_mean_of_a_linear_field_is_exact():
@@ -1218,21 +1161,12 @@ temperature = 0
 def test_axisymmetric_reciprocity():
     # Reciprocity (Maxwell–Betti, symmetric K) holds in an axisymmetric model too when the
     # means use the same ∫ φ_i 2πr dA weights as the loads (cf. the planar check above).
-    text = ROD.replace(f"power_density = {QDOT}", "") + """temperature = 20
-
-[[shape]]
-name = "a"
-material = "m"
-rect = { x = 0, y = 1, width = 0.5, height = 0.2 }
-power = 1
-
-[[shape]]
-name = "b"
-material = "m"
-rect = { x = 1.2, y = 1, width = 0.6, height = 0.2 }
-power = 1
-"""
-    rise = run(text).summary["thermal_resistance"]["mean_rise_k_per_w"]
+    model = rod(temperature=20).edited(lambda d: d["shape"][0].pop("power_density"))
+    model = model.with_shape(name="a", material="m", power=1,
+                             rect={"x": 0, "y": 1, "width": 0.5, "height": 0.2})
+    model = model.with_shape(name="b", material="m", power=1,
+                             rect={"x": 1.2, "y": 1, "width": 0.6, "height": 0.2})
+    rise = run(model).summary["thermal_resistance"]["mean_rise_k_per_w"]
     assert rise["a"]["b"] == pytest.approx(rise["b"]["a"], rel=ROUND_OFF)
 
 

@@ -28,10 +28,11 @@ from scipy.optimize import brentq
 
 import heat2d
 from heat2d import cli
+from heat2d.fem.assembly import assemble
 from heat2d.pipeline import adaptive as adapt
 from heat2d.pipeline import chain as pipeline
-from heat2d.fem.assembly import assemble
 from heat2d.post.estimate import grid_convergence
+from heat2d.verify import load_model, model_file
 
 # ---------------------------------------------------------------------------------------
 # Helpers
@@ -81,6 +82,22 @@ def probes_toml(probes: dict[str, tuple[float, float]]) -> str:
                    for n, (x, y) in probes.items())
 
 
+def with_probes(model: heat2d.Model, probes: dict[str, tuple[float, float]]) -> heat2d.Model:
+    """The model with its own probes replaced by ``probes``."""
+    return model.edited(lambda d: d.__setitem__(
+        "probe", [{"name": n, "at": [x, y]} for n, (x, y) in probes.items()]))
+
+
+def with_mesh(model: heat2d.Model, **keys) -> heat2d.Model:
+    """The model with these keys set in its [mesh] table (``size``, ``accuracy``, ...)."""
+    return model.edited(lambda d: d.setdefault("mesh", {}).update(keys))
+
+
+def default_mesh(model: heat2d.Model) -> heat2d.Model:
+    """The model without its [mesh] table: the default mesh (extent / 50)."""
+    return model.edited(lambda d: d.pop("mesh", None))
+
+
 def plate_series(x, y, length, height, terms=200):
     """θ* of Inc Eq. 4.19 (three sides at T1, top at T2): (2/π) Σ ((−1)ⁿ⁺¹+1)/n
     sin(nπx/L) sinh(nπy/L)/sinh(nπW/L); sinh ratio with exponentials (no overflow)."""
@@ -97,7 +114,7 @@ def plate_series(x, y, length, height, terms=200):
 @dataclasses.dataclass(frozen=True)
 class Case:
     source: str
-    text: str
+    model: heat2d.Model
     exact: dict[str, float]
     field: Callable[[float, float], float]
     """The exact temperature at (x, y), model units."""
@@ -109,32 +126,20 @@ def plate() -> Case:
     # Inc §4.2, Eq. 4.19 (RF #7): square, three sides at T1, the top at T2. The top corners
     # carry a jump in the boundary data (a singularity); the top's heat flow is infinite,
     # so only temperatures are compared. Mean over the square: 1/4 of T2 − T1 exactly
-    # (four rotated copies add up to a plate with every side at T2).
-    side, t1, t2 = 10.0, 20.0, 120.0
-    probes = {"centre": (5.0, 5.0), "near_top": (2.5, 8.0), "low": (7.3, 2.1)}
-    text = f"""
-[model]
-length_unit = "mm"
-[materials.m]
-k = 10
-[[shape]]
-name = "plate"
-material = "m"
-rect = {{ x = 0, y = 0, width = {side}, height = {side} }}
-[[boundary]]
-name = "top"
-on = "plate.top"
-temperature = {t2}
-[[boundary]]
-name = "rest"
-on = "exterior"
-temperature = {t1}
-""" + probes_toml(probes)
+    # (four rotated copies add up to a plate with every side at T2). The plate of the
+    # error_estimate case of heat2d verify (side 10 mm, T1 = 20 °C, T2 = 120 °C, k = 10
+    # W/(m·K)) on the default mesh; its probes centre, near_top and low are compared.
+    model = default_mesh(load_model("plate", {"k": 10}))
+    p = dict(model.params)
+    side, t1, t2 = p["side"], p["t1"], p["t2"]
+    probes = {pr.name: (pr.x, pr.y) for pr in model.probes
+              if pr.name in ("centre", "near_top", "low")}
+    assert probes == {"centre": (5.0, 5.0), "near_top": (2.5, 8.0), "low": (7.3, 2.1)}
     exact = {f"probes.{n}": t1 + (t2 - t1) * plate_series(x, y, side, side)
              for n, (x, y) in probes.items()}
     exact["temperature.max"] = exact["shapes.plate.max"] = t2      # held on the top edge
     exact["shapes.plate.mean"] = t1 + 0.25 * (t2 - t1)
-    return Case("Inc §4.2, Eq. 4.19", text, exact,
+    return Case("Inc §4.2, Eq. 4.19", model, exact,
                 lambda x, y: t1 + (t2 - t1) * plate_series(x, y, side, side),
                 lambda rng: tuple(rng.uniform(0.1, side - 0.1, 2)))
 
@@ -182,7 +187,7 @@ temperature = {ts2}
              "boundaries.bottom.heat_out_w": power - q_top * width * depth,
              # mean of the parabola: (Ts1 + Ts2)/2 + q̇L²/(3k)
              "shapes.slab.mean": (ts1 + ts2) / 2 + qdot * half**2 / (3 * k)}
-    return Case("Inc §3.5.1, two surface temperatures", text, exact,
+    return Case("Inc §3.5.1, two surface temperatures", heat2d.parse(text), exact,
                 lambda x, y: temp(y),
                 lambda rng: (rng.uniform(0.1, 5.9), rng.uniform(0.01, 1.99)))
 
@@ -220,7 +225,7 @@ temperature = {t2}
              **{f"probes.{n}": t1 - (t1 - t2) * math.log(x / r1) / ln
                 for n, (x, _) in probes.items()},
              "shapes.wall.mean": mean, "shapes.wall.max": t1}
-    return Case("Inc §3.3.1, Table 3.3", text, exact,
+    return Case("Inc §3.3.1, Table 3.3", heat2d.parse(text), exact,
                 lambda x, y: t1 - (t1 - t2) * math.log(x / r1) / ln,
                 lambda rng: (rng.uniform(1.01, 3.99), rng.uniform(0.01, 0.99)))
 
@@ -274,11 +279,15 @@ ambient = {t_inf}
         r, a = rng.uniform(2.05, 5.9), rng.uniform(0, 2 * math.pi)
         return r * math.cos(a), r * math.sin(a)
 
-    return Case("Inc §3.3.1, Table 3.3", text, exact, lambda x, y: temp(math.hypot(x, y)),
-                sample)
+    return Case("Inc §3.3.1, Table 3.3", heat2d.parse(text), exact,
+                lambda x, y: temp(math.hypot(x, y)), sample)
 
 
-FIN = {"k": 15.0, "t": 1e-3, "length": 50e-3, "h": 25.0, "t_base": 100.0, "t_air": 25.0}
+# The fin of the fin case of heat2d verify (RF #5 test values), in SI units.
+FIN_PARAMS = dict(load_model("fin").params)
+FIN = {"k": FIN_PARAMS["k"], "t": FIN_PARAMS["t"] * 1e-3,
+       "length": FIN_PARAMS["length"] * 1e-3, "h": FIN_PARAMS["h"],
+       "t_base": FIN_PARAMS["t_base"], "t_air": FIN_PARAMS["t_air"]}
 
 
 def fin_two_d(x: float, y: float, terms: int = 200) -> tuple[float, float, float]:
@@ -309,34 +318,18 @@ def fin_two_d(x: float, y: float, terms: int = 200) -> tuple[float, float, float
 
 
 def fin() -> Case:
+    # The fin case of heat2d verify on its default mesh, probes at the tip and at mid-length.
     f = FIN
-    probes = {"tip": (50.0, 0.5), "mid": (20.0, 0.3)}
-    text = f"""
-[model]
-length_unit = "mm"
-[materials.steel]
-k = {f["k"]}
-[[shape]]
-name = "fin"
-material = "steel"
-rect = {{ x = 0, y = 0, width = 50, height = 1 }}
-[[boundary]]
-name = "base"
-on = "fin.left"
-temperature = {f["t_base"]}
-[[boundary]]
-name = "air"
-on = "exterior"
-h = {f["h"]}
-ambient = {f["t_air"]}
-""" + probes_toml(probes)
+    model = default_mesh(load_model("fin")).with_probe("mid", (20.0, 0.3))
+    probes = {pr.name: (pr.x, pr.y) for pr in model.probes}
+    assert probes == {"tip": (50.0, 0.5), "mid": (20.0, 0.3)}
     _, q, mean = fin_two_d(0.0, 0.0)
     exact = {"boundaries.base.heat_out_w": -q, "boundaries.air.heat_out_w": q,
              **{f"probes.{n}": fin_two_d(x * 1e-3, y * 1e-3 - f["t"] / 2)[0]
                 for n, (x, y) in probes.items()},
              "temperature.max": f["t_base"], "shapes.fin.mean": mean,
              "shapes.fin.max": f["t_base"]}
-    return Case("Inc §3.6, Table 3.4 case A (2-D)", text, exact,
+    return Case("Inc §3.6, Table 3.4 case A (2-D)", model, exact,
                 lambda x, y: fin_two_d(x * 1e-3, y * 1e-3 - f["t"] / 2)[0],
                 lambda rng: (rng.uniform(0.5, 49.9), rng.uniform(0.01, 0.99)))
 
@@ -344,35 +337,20 @@ ambient = {f["t_air"]}
 def rod() -> Case:
     # Inc §3.5.2 (RF #4), axisymmetric: T = Ts + q̇r0²/(4k)(1 − r²/r0²), Ts = T∞ + q̇r0/(2h);
     # RF test values r0 = 2 mm, ΔTmax = 1 K; volume mean Ts + q̇r0²/(8k); heat out = power.
-    r0, height, k, h, t_inf = 2e-3, 1e-3, 1.0, 1000.0, 19.0
-    qdot = 4 * k * 1.0 / r0**2
+    # The rod of the rod_generation case of heat2d verify on its default mesh, with a probe
+    # at half the radius.
+    model = default_mesh(load_model("rod_generation")).with_probe("half_radius", (1.0, 0.3))
+    p = dict(model.params)
+    r0, height, k, h, t_inf = p["r0"] * 1e-3, p["height"] * 1e-3, p["k"], p["h"], p["t_inf"]
+    qdot = p["qdot"]
+    assert qdot == 4 * k * 1.0 / r0**2                                 # ΔTmax = 1 K
     ts = t_inf + qdot * r0 / (2 * h)
-    text = f"""
-[model]
-length_unit = "mm"
-axisymmetric = true
-[materials.m]
-k = {k}
-[[shape]]
-name = "rod"
-material = "m"
-rect = {{ x = 0, y = 0, width = 2, height = 1 }}
-power_density = {qdot}
-[[boundary]]
-name = "skin"
-on = "rod.right"
-h = {h}
-ambient = {t_inf}
-[[probe]]
-name = "half_radius"
-at = [1.0, 0.3]
-"""
     exact = {"temperature.max": ts + qdot * r0**2 / (4 * k),
              "shapes.rod.max": ts + qdot * r0**2 / (4 * k),
              "probes.half_radius": ts + qdot * r0**2 / (4 * k) * (1 - 0.25),
              "boundaries.skin.heat_out_w": qdot * math.pi * r0**2 * height,
              "shapes.rod.mean": ts + qdot * r0**2 / (8 * k)}
-    return Case("Inc §3.5.2", text, exact,
+    return Case("Inc §3.5.2", model, exact,
                 lambda x, y: ts + qdot * r0**2 / (4 * k) * (1 - (x * 1e-3 / r0) ** 2),
                 lambda rng: (rng.uniform(0.01, 1.99), rng.uniform(0.01, 0.99)))
 
@@ -390,7 +368,7 @@ DISHONEST: dict[str, str] = {}
     if n in DISHONEST else n for n in CASES])
 def test_estimate_covers_the_true_error(name):
     case = CASES[name]()
-    result = heat2d.solve(heat2d.parse(case.text))          # default mesh and estimate
+    result = heat2d.solve(case.model)                       # default mesh and estimate
     assert result.summary["mesh"]["nodes"] in result.summary["errors"]["nodes"]
     assert_honest(comparisons(result.summary, case.exact),
                   f"{name} ({case.source}), {result.summary['mesh']['nodes']} nodes")
@@ -498,9 +476,9 @@ def test_estimate_covers_the_true_error_at_a_reentrant_corner(monkeypatch):
 # corner singularity.
 
 
-def with_size(text: str, size: float) -> str:
-    """The model text with ``[mesh] size`` set (the texts above have no [mesh] table)."""
-    return text.replace("[[boundary]]", f"[mesh]\nsize = {size!r}\n\n[[boundary]]", 1)
+def with_size(model: heat2d.Model, size: float) -> heat2d.Model:
+    """The model with ``[mesh] size`` set."""
+    return with_mesh(model, size=size)
 
 
 def sweep_failures(runs) -> list[tuple]:
@@ -532,12 +510,12 @@ def test_estimate_covers_the_true_error_over_a_mesh_sweep(name, monkeypatch):
     first, count = SWEEPS[name]
     if name == "corner":
         monkeypatch.setattr(pipeline, "assemble", corner_assemble)
-        text, exact = L_TEXT, corner_exact()
+        model, exact = heat2d.parse(L_TEXT), corner_exact()
     else:
         case = CASES[name]()
-        text, exact = case.text, case.exact
+        model, exact = case.model, case.exact
     print(f"\n{name}, [mesh] size {first} to {first * 2 ** (-(count - 1) / 2):.3g}:")
-    runs = [(heat2d.solve(heat2d.parse(with_size(text, first * 2 ** (-j / 2)))), exact)
+    runs = [(heat2d.solve(with_size(model, first * 2 ** (-j / 2))), exact)
             for j in range(count)]
     assert not sweep_failures(runs)
 
@@ -565,19 +543,18 @@ def _sample_corner(rng) -> tuple[float, float]:
             return float(x), float(y)
 
 
-def scattered(name: str, count: int, seed: int) -> tuple[str, dict[str, float]]:
-    """The problem's model text without its own probes, plus ``count`` probes at random
-    points (seeded), and the exact figures (the problem's own, and each probe's)."""
+def scattered(name: str, count: int, seed: int) -> tuple[heat2d.Model, dict[str, float]]:
+    """The problem's model with ``count`` probes at random points (seeded) in place of its
+    own, and the exact figures (the problem's own, and each probe's)."""
     rng = np.random.default_rng(seed)
     if name == "corner":
-        text, exact = L_TEXT, corner_exact()
+        model, exact = heat2d.parse(L_TEXT), corner_exact()
         field, sample = (lambda x, y: float(corner_field(x, y))), _sample_corner
     else:
         case = CASES[name]()
-        text, exact, field, sample = case.text, case.exact, case.field, case.sample
+        model, exact, field, sample = case.model, case.exact, case.field, case.sample
     points = {f"p{i}": tuple(float(v) for v in sample(rng)) for i in range(count)}
-    text = text.split("\n[[probe]]")[0] + "\n" + probes_toml(points)
-    return text, {**{k: v for k, v in exact.items() if not k.startswith("probes.")},
+    return with_probes(model, points), {**{k: v for k, v in exact.items() if not k.startswith("probes.")},
                   **{f"probes.{n}": field(x, y) for n, (x, y) in points.items()}}
 
 
@@ -585,8 +562,8 @@ def scattered_runs(name: str, sizes: list[float], count: int, seed: int, monkeyp
     """Runs of :func:`scattered` at each [mesh] size, with the exact values."""
     if name == "corner":
         monkeypatch.setattr(pipeline, "assemble", corner_assemble)
-    text, exact = scattered(name, count, seed)
-    return [(heat2d.solve(heat2d.parse(with_size(text, size))), exact) for size in sizes]
+    model, exact = scattered(name, count, seed)
+    return [(heat2d.solve(with_size(model, size)), exact) for size in sizes]
 
 
 @pytest.mark.parametrize("name", list(SCATTER))
@@ -640,10 +617,14 @@ ACCURACY
 PIN_EXACT = PIN_T1 - (PIN_T1 - PIN_T2) * math.log(PIN_R / PIN_R1) / math.log(PIN_R2 / PIN_R1)
 
 
-def _with_accuracy(text: str, probe: str, target: float) -> str:
-    anchor = f'[[probe]]\nname = "{probe}"\n'
-    assert anchor in text
-    return text.replace(anchor, f"{anchor}accuracy = {target!r}\n")
+def _with_accuracy(model: heat2d.Model, probe: str, target: float) -> heat2d.Model:
+    """The model with an accuracy asked of its probe ``probe``."""
+    def change(data: dict) -> None:
+        entries = [p for p in data.get("probe", []) if p["name"] == probe]
+        assert len(entries) == 1, probe
+        entries[0]["accuracy"] = target
+
+    return model.edited(change)
 
 
 def _uniform_nodes(model, probe: str, target: float, exact: float) -> tuple[int, int]:
@@ -666,12 +647,13 @@ def _uniform_nodes(model, probe: str, target: float, exact: float) -> tuple[int,
 
 # Problems with a local feature, where refining everywhere wastes nodes: the thin hot pin
 # above (1/r gradient), and probes near and off the re-entrant corner of the L-shaped
-# domain (r^(-1/3) gradient). (problem text, probe, accuracy K, exact value)
+# domain (r^(-1/3) gradient). (problem model, probe, accuracy K, exact value)
 ADAPTIVE = {
-    "hot_pin": lambda: (PIN.replace("ACCURACY", ""), "near_pin", TARGET, PIN_EXACT),
-    "corner_near": lambda: (with_size(L_TEXT, 0.2), "near", 2e-3,
+    "hot_pin": lambda: (heat2d.parse(PIN.replace("ACCURACY", "")), "near_pin", TARGET,
+                        PIN_EXACT),
+    "corner_near": lambda: (with_size(heat2d.parse(L_TEXT), 0.2), "near", 2e-3,
                             corner_exact()["probes.near"]),
-    "corner_diag": lambda: (with_size(L_TEXT, 0.2), "diag", 2e-4,
+    "corner_diag": lambda: (with_size(heat2d.parse(L_TEXT), 0.2), "diag", 2e-4,
                             corner_exact()["probes.diag"]),
 }
 
@@ -681,8 +663,8 @@ def test_adaptive_reaches_the_accuracy_with_fewer_nodes_than_uniform(name, monke
     if name.startswith("corner"):
         monkeypatch.setattr(pipeline, "assemble", corner_assemble)
         monkeypatch.setattr(adapt, "assemble", corner_assemble)
-    text, probe, target, exact = ADAPTIVE[name]()
-    result = heat2d.solve(heat2d.parse(_with_accuracy(text, probe, target)))
+    model, probe, target, exact = ADAPTIVE[name]()
+    result = heat2d.solve(_with_accuracy(model, probe, target))
     adaptive = result.summary["adaptive"]
     assert adaptive["targets"] == {f"probes.{probe}": target}
     assert adaptive["reached"] is True
@@ -693,7 +675,7 @@ def test_adaptive_reaches_the_accuracy_with_fewer_nodes_than_uniform(name, monke
     true = abs(result.summary["probes"][probe] - exact)
     # The stated accuracy is truly reached, and the reported error is honest.
     assert true <= reported
-    by_estimate, by_truth = _uniform_nodes(heat2d.parse(text), probe, target, exact)
+    by_estimate, by_truth = _uniform_nodes(model, probe, target, exact)
     print(f"\n{name}: accuracy {target} K on probe {probe}: adaptive {adaptive_nodes} nodes "
           f"in {len(adaptive['steps'])} steps (true error {true:.3g} K, reported "
           f"{reported:.3g} K); uniform refinement {by_estimate} nodes until its reported "
@@ -708,8 +690,7 @@ def test_adaptive_refinement_rounds_circles_and_stays_honest():
     # error falls as the mesh does and stays inside the estimate. (Before they moved, the
     # run stopped at 0.15 K true error while reporting 6e-4 K.)
     case = pipe_wall()
-    text = _with_accuracy(with_size(case.text, 1.5), "inner", 1e-3)
-    result = heat2d.solve(heat2d.parse(text))
+    result = heat2d.solve(_with_accuracy(with_size(case.model, 1.5), "inner", 1e-3))
     assert result.summary["adaptive"]["reached"]
     true = abs(result.summary["probes"]["inner"] - case.exact["probes.inner"])
     assert true <= result.summary["probe_errors"]["inner"] <= 1e-3
@@ -729,13 +710,12 @@ def test_adaptive_accuracy_on_the_maximum(name, target):
     # ridge may be the hottest. Smooth fields: reaching the target honestly is the check
     # here, and the node counts are printed against uniform refinement.
     case = CASES[name]()
-    text = with_size(case.text, 0.5).replace("[mesh]\n", f"[mesh]\naccuracy = {target!r}\n")
-    result = heat2d.solve(heat2d.parse(text))
+    result = heat2d.solve(with_mesh(case.model, size=0.5, accuracy=target))
     assert result.summary["adaptive"]["reached"]
     true = abs(result.summary["temperature"]["max"] - case.exact["temperature.max"])
     reported = result.summary["temperature"]["max_error"]
     assert true <= reported <= target
-    model, refine = heat2d.parse(with_size(case.text, 0.5)), 1.0
+    model, refine = with_size(case.model, 0.5), 1.0
     while (r := heat2d.solve(model, refine=refine, resistances=False)).summary[
             "temperature"]["max_error"] > target and refine < 100:
         refine *= math.sqrt(2)
@@ -771,9 +751,7 @@ def test_adaptive_stops_within_the_node_budget_and_says_so():
 # instead of refining the corners to zero-area triangles.
 def test_adaptive_refinement_near_a_boundary_data_jump():
     case = plate()
-    text = case.text.replace('name = "near_top"\nat = [2.5, 8.0]',
-                             'name = "near_top"\nat = [2.5, 8.0]\naccuracy = 0.01')
-    result = heat2d.solve(heat2d.parse(with_size(text, 1.0)))
+    result = heat2d.solve(with_size(_with_accuracy(case.model, "near_top", 0.01), 1.0))
     assert result.summary["adaptive"]["reached"]
     true = abs(result.summary["probes"]["near_top"] - case.exact["probes.near_top"])
     assert true <= result.summary["probe_errors"]["near_top"] <= 0.01
@@ -799,13 +777,22 @@ def test_grid_convergence_with_close_node_counts():
     ("probe", "-1", r'probe "centre": accuracy: must be > 0 K, got -1 \(line \d+\)'),
 ])
 def test_accuracy_must_be_positive(where, value, message):
-    text = plate().text
     if where == "mesh":
-        text = text.replace("[[boundary]]", f"[mesh]\naccuracy = {value}\n\n[[boundary]]", 1)
+        text = plate_text(f"accuracy = {value}\n")
     else:
-        text = text.replace('name = "centre"\n', f'name = "centre"\naccuracy = {value}\n')
+        text = plate_text().replace('name = "centre"\n', f'name = "centre"\naccuracy = {value}\n')
     with pytest.raises(heat2d.ModelError, match=message):
         heat2d.parse(text)
+
+
+def plate_text(mesh: str = "") -> str:
+    """The text of the plate of plate() (heat2d/verify/models/plate.toml, as a user edits
+    it: errors name its lines) on the default mesh, with ``mesh`` (TOML lines) in its
+    [mesh] table."""
+    text = model_file("plate").read_text(encoding="utf-8")
+    anchor = '[mesh]\nsize = "size"\n'
+    assert anchor in text
+    return text.replace(anchor, f"[mesh]\n{mesh}")
 
 
 def _cli(tmp_path, capsys, text: str) -> tuple[int, list[str], Path]:
@@ -817,7 +804,7 @@ def _cli(tmp_path, capsys, text: str) -> tuple[int, list[str], Path]:
 
 
 def test_cli_non_positive_accuracy_exits_2_with_one_line(tmp_path, capsys):
-    text = plate().text.replace("[[boundary]]", "[mesh]\naccuracy = 0\n\n[[boundary]]", 1)
+    text = plate_text("accuracy = 0\n")
     status, err, out = _cli(tmp_path, capsys, text)
     assert status == 2
     assert len(err) == 1 and re.fullmatch(
@@ -827,8 +814,7 @@ def test_cli_non_positive_accuracy_exits_2_with_one_line(tmp_path, capsys):
 
 def test_cli_node_budget_below_the_initial_mesh_exits_2_with_one_line(tmp_path, capsys):
     # The default mesh of the plate has about 4700 nodes; a budget of 500 cannot hold it.
-    text = plate().text.replace(
-        "[[boundary]]", "[mesh]\naccuracy = 0.1\nmax_nodes = 500\n\n[[boundary]]", 1)
+    text = plate_text("accuracy = 0.1\nmax_nodes = 500\n")
     status, err, out = _cli(tmp_path, capsys, text)
     assert status == 2
     assert len(err) == 1 and re.fullmatch(

@@ -41,8 +41,9 @@ import heat2d
 from heat2d.fem.assembly import assemble
 from heat2d.fem.geometry import build_geometry
 from heat2d.fem.mesh import build_mesh
-from heat2d.post.results import compute_results
 from heat2d.fem.solver import solve as solve_system
+from heat2d.post.results import compute_results
+from tests.common import verify_model, verify_params
 
 PATCH = 1e-10
 ROUND_OFF = 1e-9
@@ -91,9 +92,11 @@ def rect(x, y, width, height) -> dict:
     return {"x": x, "y": y, "width": width, "height": height}
 
 
-def run(text: str, refine: float = 1.0):
-    """Solve a model text (no error estimate or resistance matrix: not needed here)."""
-    return heat2d.run(heat2d.parse(text), refine=refine, estimate=False, resistances=False)
+def run(model: str | heat2d.Model, refine: float = 1.0):
+    """Solve a model text or model (no error estimate or resistance matrix: not needed
+    here)."""
+    model = heat2d.parse(model) if isinstance(model, str) else model
+    return heat2d.run(model, refine=refine, estimate=False, resistances=False)
 
 
 def heat_out(result, boundary: str) -> float:
@@ -324,23 +327,31 @@ def test_wall_with_convection_both_faces(layers):
 # ---------------------------------------------------------------------------------------
 # 3. Plane wall with uniform generation (Inc §3.5.1; RF #3)
 
-QDOT, HALF, K_SLAB = 1e6, 1.0, 1.0      # W/m³, half-thickness mm, W/(m·K): RF #3 test value
-SLAB_HEIGHT, SLAB_DEPTH = 0.5, 10.0     # mm
+# The slab of the generation_slab case of heat2d verify (heat2d/verify/models), with its
+# RF #3 test values: q̇ = 1e6 W/m³, half-thickness 1 mm, k = 1 W/(m·K); 0.5 mm high,
+# 10 mm deep, [mesh] size 0.1 mm.
+SLAB = verify_params("generation_slab")
+QDOT, HALF, K_SLAB = SLAB["qdot"], SLAB["half"], SLAB["k"]      # W/m³, mm, W/(m·K)
+SLAB_HEIGHT, SLAB_DEPTH = SLAB["height"], SLAB["depth"]         # mm
 SLAB_FACES = {  # face condition and the surface temperature it gives (Inc §3.5.1)
-    "fixed": ({"temperature": 20.0}, 20.0),
-    "convection": ({"h": 500.0, "ambient": 20.0}, 20.0 + QDOT * HALF * 1e-3 / 500.0),
+    "fixed": ({"temperature": SLAB["t_inf"]}, SLAB["t_inf"]),
+    "convection": ({"h": SLAB["h"], "ambient": SLAB["t_inf"]},
+                   SLAB["t_inf"] + QDOT * HALF * 1e-3 / SLAB["h"]),
 }
 
 
-def slab_text(face: dict, source: dict, size: float = 0.1) -> str:
-    return model_text(
-        model={"length_unit": "mm", "depth": SLAB_DEPTH},
-        materials={"m": {"k": K_SLAB}},
-        shapes=[{"name": "slab", "material": "m",
-                 "rect": rect(-HALF, 0, 2 * HALF, SLAB_HEIGHT), **source}],
-        boundaries=[{"name": "left", "on": "slab.left", **face},
-                    {"name": "right", "on": "slab.right", **face}],
-        mesh={"size": size})
+def slab_model(face: dict, source: dict | None = None) -> heat2d.Model:
+    """The generation_slab model with both faces set to ``face`` and, if given, the
+    slab's power_density replaced by the source keys ``source``."""
+    model = verify_model("generation_slab")
+    for name in ("left", "right"):
+        model = model.with_boundary(name=name, on=f"slab.{name}", **face)
+
+    def set_source(data: dict) -> None:
+        data["shape"][0].pop("power_density")
+        data["shape"][0].update(source)
+
+    return model if source is None else model.edited(set_source)
 
 
 @pytest.mark.parametrize("faces", list(SLAB_FACES))
@@ -353,7 +364,7 @@ def test_slab_with_uniform_generation(faces):
     def parabola(x_mm):
         return t_surface + dt_max * (1 - (x_mm / HALF) ** 2)
 
-    results = [run(slab_text(face, {"power_density": QDOT}), refine) for refine in (1, 2)]
+    results = [run(slab_model(face), refine) for refine in (1, 2)]
     errors = [np.abs(r.temperature - parabola(r.mesh.points[:, 0])).max() / dt_max
               for r in results]
     sizes = [mean_h(r.mesh) for r in results]
@@ -383,7 +394,7 @@ def test_slab_with_uniform_generation(faces):
 
     # The same power given in watts over the shape gives the same field: q̇ = P/(A·depth),
     # A the meshed area (exact for a rect); only the round-off of that area sum differs.
-    as_power = run(slab_text(face, {"power": power}), 2)
+    as_power = run(slab_model(face, {"power": power}), 2)
     assert as_power.summary["shapes"]["slab"]["power_w"] == pytest.approx(power, rel=1e-12)
     np.testing.assert_allclose(as_power.temperature, fine.temperature, rtol=1e-12, atol=0)
 
@@ -401,7 +412,7 @@ def test_slab_nodal_values_exact_on_a_mesh_uniform_through_the_thickness():
     from heat2d.fem.solver import solve
 
     face, t_surface = SLAB_FACES["fixed"]
-    model = heat2d.parse(slab_text(face, {"power_density": QDOT}))
+    model = slab_model(face)
     mesher = build_mesh(build_geometry(model))
     nx, ny = 16, 3
     xs = np.linspace(-HALF, HALF, nx + 1)
@@ -436,20 +447,18 @@ def test_slab_nodal_values_exact_on_a_mesh_uniform_through_the_thickness():
 
 
 def test_cylinder_wall_heat_rate_converges():
-    r1, r2, t1, t2, k, depth = 10.0, 25.0, 150.0, 30.0, 15.0, 200.0   # mm, °C, W/(mK), mm
-    text = model_text(
-        model={"length_unit": "mm", "depth": depth},
-        materials={"steel": {"k": k}},
-        shapes=[{"name": "pipe", "material": "steel", "circle": {"x": 0, "y": 0, "r": r2}},
-                {"name": "bore", "void": True, "circle": {"x": 0, "y": 0, "r": r1}}],
-        boundaries=[{"name": "inner", "on": "bore", "temperature": t1},
-                    {"name": "outer", "on": "pipe", "temperature": t2}],
-        mesh={"size": 2.0})
+    # The steel pipe wall of the cylinder_wall case of heat2d verify (r1 = 10 mm, r2 =
+    # 25 mm, k = 15 W/(m·K), bore at 150 °C), its outside held at T∞ = 30 °C instead of
+    # convecting, 200 mm deep, on a 2 mm mesh.
+    p = verify_params("cylinder_wall")
+    r1, r2, t1, t2, k, depth = p["r1"], p["r2"], p["t_in"], p["t_inf"], p["k"], 200.0
+    model = verify_model("cylinder_wall", depth=depth, size=2.0).with_boundary(
+        name="outer", on="pipe", temperature=t2)
     # Inc §3.3.1, Table 3.3: q′ = 2πk(T1 − T2)/ln(r2/r1), W per metre of depth.
     q = 2 * math.pi * k * (t1 - t2) / math.log(r2 / r1) * depth * 1e-3
     errors = []
     for refine in (1, 2):
-        result = run(text, refine)
+        result = run(model, refine)
         errors.append(abs(heat_out(result, "outer") / q - 1))
         assert heat_out(result, "inner") == pytest.approx(-heat_out(result, "outer"),
                                                           rel=ROUND_OFF)
@@ -544,8 +553,11 @@ def test_rectangle_with_one_hot_side(kx, ky, height):
 
 
 def test_straight_fin_with_convective_tip():
-    k, t, length, h = 15.0, 1.0, 50.0, 25.0          # W/(mK), mm, mm, W/(m²K)
-    t_base, t_air = 100.0, 25.0
+    # The fin case of heat2d verify (RF #5 test values: k = 15 W/(mK), t = 1 mm, L = 50 mm,
+    # h = 25 W/(m²K); base 100 °C, air 25 °C; depth 1 m; [mesh] size 0.5 mm).
+    p = verify_params("fin")
+    k, t, length, h = p["k"], p["t"], p["length"], p["h"]    # W/(mK), mm, mm, W/(m²K)
+    t_base, t_air = p["t_base"], p["t_air"]
     theta_b = t_base - t_air
     # Per unit depth, P = 2 (two faces) and A_c = t (Inc §3.6.2, m² = hP/(kA_c), w ≫ t).
     m = math.sqrt(h * 2 / (k * t * 1e-3))
@@ -561,14 +573,7 @@ def test_straight_fin_with_convective_tip():
     assert q_per_theta == pytest.approx(0.8610, abs=5e-5)
     assert tip == pytest.approx(0.1081, abs=5e-5)
 
-    text = model_text(
-        model={"length_unit": "mm"},                       # depth default: 1 m
-        materials={"steel": {"k": k}},
-        shapes=[{"name": "fin", "material": "steel", "rect": rect(0, 0, length, t)}],
-        boundaries=[{"name": "base", "on": "fin.left", "temperature": t_base},
-                    {"name": "air", "on": "exterior", "h": h, "ambient": t_air}],
-        mesh={"size": 0.5})
-    result = run(text)
+    result = run(verify_model("fin"))
     # The 1-D fin model neglects the temperature drop across the thickness, an error of
     # order Bi = h t/(2k) = 8e-4 here (RF #5 validity: Bi ≤ 0.01). Tolerance 1 %: the
     # reference-facts tolerance against 1-D engineering models (measured: heat rate −8e-5,
