@@ -17,6 +17,7 @@ from shapely.geometry import LineString, Polygon
 
 from ..errors import GeometryError
 from ..model import Boundary, Model, Shape
+from .sanity import sanity_warnings
 
 DEFAULT_SIZE_FRACTION = 1 / 50
 """Default target edge length as a fraction of the model's largest extent."""
@@ -132,11 +133,14 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
     vertices, inverse = np.unique(np.vstack([starts, ends]), axis=0, return_inverse=True)
     inverse = inverse.ravel()
     segments = np.column_stack([inverse[: len(starts)], inverse[len(starts):]])
-    segments = segments[segments[:, 0] != segments[:, 1]]
-    segments = np.unique(np.sort(segments, axis=1), axis=0)
+    vertices, segments = _clean_graph(vertices, segments, tol)
 
     # Faces: seed each with the shape on top there.
-    faces = shapely.get_parts(shapely.polygonize(parts))
+    # From the cleaned graph the mesher gets, so that no sliver face of a removed stub
+    # puts a hole point inside the body.
+    edges = shapely.linestrings(np.stack([vertices[segments[:, 0]],
+                                          vertices[segments[:, 1]]], axis=1))
+    faces = shapely.get_parts(shapely.polygonize(edges))
     points = shapely.point_on_surface(faces)
     fx, fy = shapely.get_coordinates(points).T
     top = np.full(len(faces), -1)
@@ -166,6 +170,7 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
     interface = _interfaces(model, visible, exposed, a, b, mid, tol)
 
     _check_probes(model, body, tol, grid)
+    warnings += sanity_warnings(model, visible, claims, a, b, size, extent, tol)
     for s, v in zip(model.shapes, visible, strict=True):
         if not s.void and v.area <= 0:
             powered = " and its power is lost" if (s.power or s.power_density) else ""
@@ -175,6 +180,41 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
                     segment_interface=interface, segment_axis=axis, seeds=seeds,
                     holes=holes, visible=tuple(visible), body=body, size=size,
                     tolerance=tol, warnings=tuple(warnings), refine=refine)
+
+
+def _clean_graph(vertices: np.ndarray, segments: np.ndarray, tol: float
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Merge vertices closer than ``tol`` and drop dangling segments.
+
+    Noding outlines that cross at a shallow angle (two overlapping circles) on the
+    snapping grid can leave two crossing points a grid step apart, joined by a stub that
+    ends nowhere; the mesher keeps the stub's free end as a vertex no triangle uses.
+    Every true graph edge lies on a closed outline, so each vertex meets at least two
+    segments: stubs are removed until that holds.
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+    from scipy.spatial import cKDTree
+
+    pairs = cKDTree(vertices).query_pairs(tol, output_type="ndarray")
+    if len(pairs):
+        n = len(vertices)
+        link = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n))
+        _, label = connected_components(link, directed=False)
+        # Each group of near-coincident vertices becomes its first member.
+        first = np.full(label.max() + 1, n)
+        np.minimum.at(first, label, np.arange(n))
+        segments = first[label][segments]
+    segments = segments[segments[:, 0] != segments[:, 1]]
+    segments = np.unique(np.sort(segments, axis=1), axis=0)
+    while len(segments):
+        degree = np.bincount(segments.ravel(), minlength=len(vertices))
+        stub = (degree[segments] < 2).any(axis=1)
+        if not stub.any():
+            break
+        segments = segments[~stub]
+    used, inverse = np.unique(segments, return_inverse=True)
+    return vertices[used], inverse.reshape(segments.shape)
 
 
 def _exterior_voids(model: Model, polys: list, claims: np.ndarray, a: np.ndarray,
@@ -232,12 +272,26 @@ def _split_at(starts: np.ndarray, ends: np.ndarray, cuts: np.ndarray, tol: float
 
 
 def _paint(model: Model, polys: list, grid: float) -> tuple[list, shapely.Geometry]:
-    """What later shapes leave of each shape, and the solid body (voids taken out)."""
-    visible = [None] * len(polys)
-    covered = Polygon()
-    for i in range(len(polys) - 1, -1, -1):
-        visible[i] = shapely.difference(polys[i], covered, grid_size=grid)
-        covered = shapely.union(covered, polys[i], grid_size=grid)
+    """What later shapes leave of each shape, and the solid body (voids taken out).
+
+    Each shape is differenced only against the later shapes whose bounding boxes meet
+    it (an STRtree query), so many repeated copies paint in about n log n rather than
+    against the union of everything painted so far."""
+    tree = shapely.STRtree(polys)
+    left, right = tree.query(polys, predicate="intersects")
+    later = right > left
+    left, right = left[later], right[later]
+    order = np.argsort(left, kind="stable")
+    left, right = left[order], right[order]
+    bounds = np.searchsorted(left, np.arange(len(polys) + 1))
+    visible = []
+    for i, poly in enumerate(polys):
+        over = right[bounds[i]:bounds[i + 1]]
+        if len(over) == 0:
+            visible.append(poly)
+            continue
+        covered = shapely.union_all([polys[j] for j in over], grid_size=grid)
+        visible.append(shapely.difference(poly, covered, grid_size=grid))
     solid = [v for s, v in zip(model.shapes, visible, strict=True) if not s.void]
     return visible, shapely.union_all(solid, grid_size=grid)
 
@@ -318,7 +372,7 @@ def _polygon(model: Model, shape: Shape, size: float, grid: float, refine: float
 def _on(geom: shapely.Geometry, a: np.ndarray, b: np.ndarray, mid: np.ndarray,
         tol: float) -> np.ndarray:
     """True for segments (a, b) lying on ``geom`` (both ends and the midpoint within tol)."""
-    if geom.is_empty or len(a) == 0:
+    if geom is None or geom.is_empty or len(a) == 0:
         return np.zeros(len(a), dtype=bool)
     shapely.prepare(geom)
     return (shapely.dwithin(geom, shapely.points(mid), tol)
@@ -361,6 +415,12 @@ def _interfaces(model: Model, visible: list, exposed: np.ndarray, a: np.ndarray,
     for itf in model.interfaces:
         va, vb = (shapely.union_all([visible[s.index] for s in model.members(n)])
                   for n in (itf.a, itf.b))
+        for name, v in ((itf.a, va), (itf.b, vb)):
+            if v.is_empty or v.area <= 0:
+                raise GeometryError(f"{name!r} is wholly covered by later shapes, so the "
+                                    "interface cannot exist (remove it, or paint the shape "
+                                    "after the ones covering it)", file=model.source,
+                                    entry=f"interface \"{itf.name}\"", line=itf.line)
         mask = (~exposed & _on(shapely.boundary(va), a, b, mid, tol)
                 & _on(shapely.boundary(vb), a, b, mid, tol))
         if not mask.any():

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import SolveError
+from ..errors import ModelError, SolveError
 
 if TYPE_CHECKING:
     import scipy.sparse as sp
@@ -38,6 +38,10 @@ ACCEPT_RESIDUAL = 1e-8
 NONLINEAR_TOL = 1e-6
 """Newton stops when no nodal temperature changes by more than this (K)."""
 MAX_NONLINEAR_ITERATIONS = 40
+ILL_CONDITIONED_ROUNDOFF = 1e-6
+"""Warn when the condition estimate times machine epsilon exceeds this: reported figures
+then carry round-off above the 1e-6 to which the energy balance is otherwise checked."""
+EPS = float(np.finfo(float).eps)
 
 
 class Factor:
@@ -226,7 +230,16 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
         factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
+    kappa, note = conditioning(system, Kf, free)
+    if note:
+        notes.append(note)
     if not np.isfinite(residual) or residual > ACCEPT_RESIDUAL:
+        if note:
+            k = np.maximum(system.kx, system.ky)
+            material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
+            raise ModelError(f"{note.replace('figures may carry', 'the solve fails with')}"
+                             f" (relative residual {residual:.1e})", file=system.model.source,
+                             entry=f"material \"{material.name}\"")
         raise SolveError(f"linear solve failed: relative residual {residual:.2e} with {chosen}",
                          file=system.model.source)
     T[free] = x
@@ -236,6 +249,50 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         T, residual, history, iterations = _newton(system, T, free, factor, tol, max_iterations)
     return Solution(system, T, chosen, iterations, residual, time.perf_counter() - start,
                     tuple(notes), tuple(history), factor, free)
+
+
+def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray
+                 ) -> tuple[float, str | None]:
+    """A cheap lower estimate of the condition number of the reduced matrix, and a
+    warning when round-off at that condition reaches :data:`ILL_CONDITIONED_ROUNDOFF`.
+
+    For the constant vector v = 1/√n over the n free nodes, vᵀ K_ff v = G/n, where G is
+    the conductance from the free nodes to the outside (convection ∫h dS and coupling
+    to fixed nodes), so λ_min ≤ G/n; λ_max ≥ max diag K_ff. κ ≥ n max diag K_ff / G.
+    G is summed from the boundary terms themselves, not from row sums of K (those cancel
+    to round-off when conductivities are large).
+
+    Parameters
+    ----------
+    system
+        The assembled system.
+    Kf
+        Rows of K at the free nodes (all columns).
+    free
+        Mask of the free nodes.
+
+    Returns
+    -------
+    kappa, note
+        The estimate, and the warning text or None.
+    """
+    n = int(free.sum())
+    h = np.nan_to_num(system.edge["h"])
+    ground = float(np.abs(Kf[:, ~free]).sum()
+                   + (h * system.layout.edge_load.sum(axis=1)).sum())
+    diag = Kf[:, free].diagonal()
+    top = float(diag.max()) if len(diag) else 0.0
+    if ground <= 0 or top <= 0 or not np.isfinite(ground * top):
+        return np.inf, None
+    kappa = n * top / ground
+    if kappa * EPS <= ILL_CONDITIONED_ROUNDOFF:
+        return kappa, None
+    k = np.maximum(system.kx, system.ky)
+    material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
+    return kappa, (f"ill-conditioned system: conductances span at least {kappa:.0e} "
+                   f"(conductivity up to {k.max():g} W/(m·K) in material \"{material.name}\" "
+                   f"against {ground:.2g} W/K to the boundaries); figures may carry round-off "
+                   f"of {kappa * EPS:.0e} relative")
 
 
 def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray, keep_order: bool

@@ -15,8 +15,15 @@ import numpy as np
 
 from ..errors import ModelError
 from ..fem.geometry import circle_sides
+from ..fem.sanity import check_finite
 from ..fem.solver import Solution
 from ..version import __version__
+
+REACTION_ROUNDOFF = 1e-6
+"""Warn when the reactions' round-off bound exceeds this fraction of the balance scale."""
+ROUNDOFF_FLOWS = 100.0
+"""With nothing powered, boundary flows below this many times the reactions' round-off
+bound are round-off, not heat: the balance is then 0 by definition."""
 
 CAUTION = (
     "Estimates only: a 2-D section of an idealised model. Confirm against measurements and "
@@ -220,8 +227,11 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
         probes[probe.name] = float(bary @ T[tri[k]])
 
     warnings = [*mesh.geometry.warnings, *system.warnings, *solution.notes]
-    if abs(balance["relative_error"]) > 1e-6:
-        warnings.append(f"energy balance closes only to {balance['relative_error']:.1e}")
+    warnings += [balance["note"]] if "note" in balance else []
+    if abs(balance["relative_error"]) > REACTION_ROUNDOFF:
+        warnings.append(f"energy balance closes only to {balance['relative_error']:.1e} "
+                        f"(heat out {balance['heat_out_w']:.6g} W, power in "
+                        f"{balance['power_in_w']:.6g} W)")
     shapes = {sh.name: {"material": sh.material, **stats[i]}
               for i, sh in enumerate(model.shapes) if not sh.void}
     limits = _limits(model, shapes)
@@ -267,6 +277,8 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
         "warnings": warnings,
         "caution": CAUTION,
     }
+    check_finite({"summary": summary, "heat_flux": float(np.abs(flux).max(initial=0.0))},
+                 model.source)
     return Result(solution=solution, heat_flux=flux, summary=summary)
 
 
@@ -373,16 +385,31 @@ def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float]
     generated = system.qdot_power()
     flux_in = float((system.edge["flux"] * system.layout.edge_load.sum(axis=1)).sum())
     heat_out = float(heat[:nb].sum()) + flux_in       # leaving by convection, radiation, fixed
-    gross_in = generated + sum(max(-heat[i], 0.0) for i in range(nb))
-    gross_out = sum(max(heat[i], 0.0) for i in range(nb))
-    # Reactions are differences of terms as large as Σ|K_ij||T_j| at the fixed nodes: their
-    # round-off, relative to that, must not count as imbalance in a model with no power.
-    terms = float((abs(system.K) @ np.abs(T))[system.fixed].sum())
-    scale = max(gross_in, gross_out, 1e-8 * terms)
     power_in = generated + flux_in
+    # Reactions sum m_i terms, Σ_j|K_ij||T_j| at most: their round-off is (m_i + 1)ε times
+    # that (the dot product and the rounding of T); the heat at fixed edges carries it.
+    k_rows = abs(system.K.tocsr()[system.fixed])
+    terms = k_rows @ np.abs(T)
+    roundoff = float(np.finfo(float).eps * ((np.diff(k_rows.indptr) + 1) * terms).sum())
+    # The plain balance (heat out − power in) / power in; with nothing powered, over the
+    # largest boundary flow (heat through the body from a hot to a cold boundary), unless
+    # that flow is itself round-off (a body held at one temperature carries none).
+    largest = float(np.abs(heat[:nb]).max()) if nb else 0.0
+    if power_in == 0 and largest <= ROUNDOFF_FLOWS * roundoff:
+        largest = 0.0
+    scale = abs(power_in) if power_in != 0 else largest
     balance = {"power_in_w": power_in, "generated_w": generated, "heat_flux_in_w": flux_in,
                "heat_out_w": heat_out,
-               "relative_error": float((power_in - heat_out) / scale) if scale > 0 else 0.0}
+               "relative_error": float((heat_out - power_in) / scale) if scale > 0 else 0.0,
+               "relative_to": ("power_in_w" if power_in != 0 else "largest boundary flow"
+                               if scale > 0 else "nothing: no power and no flow")}
+    if scale > 0 and roundoff > REACTION_ROUNDOFF * scale:
+        k = np.maximum(system.kx, system.ky)
+        balance["note"] = (
+            f"ill-conditioned system: conductivities up to {k.max():g} W/(m·K) (material "
+            f"\"{model.materials[mesh.triangle_material[np.argmax(k)]].name}\") make the heat"
+            f" at fixed-temperature boundaries a difference of terms of {terms.sum():.1e} W; "
+            f"figures may carry round-off of {roundoff:.1e} W")
     insulated = float(lengths[owner < 0].sum())
     return boundaries, balance, insulated
 
