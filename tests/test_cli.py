@@ -123,7 +123,9 @@ def test_failed_writer_leaves_nothing_half_written(model_file, tmp_path, monkeyp
     monkeypatch.setitem(heat2d.post.writers.WRITERS, "png", ("{stem}.png", broken))
     out = tmp_path / "out"
     assert cli.main(["run", str(model_file), "--out", str(out), "--quiet"]) == 1
-    assert list(out.iterdir()) == []
+    # No previous result: the folder stays absent, with no scratch sibling left beside it.
+    assert not out.exists()
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".out.")] == []
 
 
 def test_check_lists_shapes_boundaries_and_mesh(model_file, capsys):

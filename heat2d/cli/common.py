@@ -3,19 +3,61 @@ announcement of slow stages."""
 
 from __future__ import annotations
 
+import signal
 import threading
 import time
 from collections.abc import Sequence
+from typing import Any
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_LIMIT = 0, 1, 2, 3
 """Exit statuses: success, internal or solver failure, bad input (nothing written), a
 temperature limit exceeded under ``--strict`` (outputs are written)."""
+EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
+"""Exit statuses after Ctrl-C (SIGINT) and SIGTERM: 128 + the signal number, as shells
+report a process killed by it. Outputs are all or nothing either way."""
 SLOW_STAGE_S = 1.0
 """Stages that take longer than this are announced on the terminal."""
 
 
 class UsageError(Exception):
     """A command-line argument is malformed."""
+
+
+class Terminated(BaseException):
+    """SIGTERM arrived: raised in the main thread by the handler :func:`on_sigterm`
+    installs, so the same clean-up as for Ctrl-C (KeyboardInterrupt) runs. A
+    BaseException, so that no ``except Exception`` turns it into a failure."""
+
+
+def _raise_terminated(signum: int, frame: Any) -> None:
+    raise Terminated()
+
+
+def on_sigterm() -> Any:
+    """Make SIGTERM raise :class:`Terminated`; returns the previous handler (None when not
+    on the main thread, where no handler can be set)."""
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    return signal.signal(signal.SIGTERM, _raise_terminated)
+
+
+def restore_sigterm(previous: Any) -> None:
+    """Put back the handler :func:`on_sigterm` returned."""
+    if previous is not None:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def interrupted(exc: BaseException) -> tuple[str, int]:
+    """The stderr line and the exit status for Ctrl-C or SIGTERM. A command that knows
+    what state its outputs are in sets ``exc.heat2d_outputs`` (e.g. "no output written")."""
+    what, status = (("terminated", EXIT_TERMINATED) if isinstance(exc, Terminated)
+                    else ("interrupted", EXIT_INTERRUPTED))
+    # CPython marks a KeyboardInterrupt that escapes code run from a string (exec of the
+    # methods dataclasses generate, during an import) as unhandled, and then ends the
+    # process by SIGINT instead of our exit status, even though it was caught here.
+    # Running code from a string clears that mark.
+    exec("pass")  # noqa: S102 - a constant string
+    return f"{what}: {getattr(exc, 'heat2d_outputs', 'no output written')}", status
 
 
 def parse_sets(items: Sequence[str]) -> dict[str, str]:

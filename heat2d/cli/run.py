@@ -3,22 +3,51 @@
 from __future__ import annotations
 
 import argparse
+import json
 import sys
 from pathlib import Path
 
-from .common import EXIT_LIMIT, EXIT_OK, Announcer, parse_sets
+from .common import EXIT_LIMIT, EXIT_OK, Announcer, Terminated, parse_sets
 
 
 def cmd_run(args: argparse.Namespace) -> int:
     from ..model import load
-    from ..pipeline import run
-    from ..post.writers import format_summary, write
 
-    model = load(args.model, params=parse_sets(args.set))
+    # The folder is known before the model is read (model.stem is the file's stem), so
+    # an interrupt at any moment can say what became of it.
+    out = Path(args.out) if args.out else Path(f"{Path(args.model).stem}-results")
+    existed = out.is_dir()
+    done: list = []
+    try:
+        model = load(args.model, params=parse_sets(args.set), node_limit=args.node_limit)
+        return _run(args, model, out, done)
+    except (KeyboardInterrupt, Terminated) as exc:
+        # What the interrupt left: write() is all or nothing, so the folder holds the
+        # previous result (or nothing), unless the new one was already in place.
+        exc.heat2d_outputs = (f"the new result is in {out}" if done and _holds(out, done[0])
+                              else f"the previous result in {out} is kept"
+                              if existed and out.is_dir() else "no output written")
+        raise
+
+
+def _holds(out: Path, result) -> bool:
+    """Whether ``out`` holds this run's summary (so its files are in place)."""
+    try:
+        written = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+        return written == json.loads(json.dumps(result.summary, allow_nan=False))
+    except (OSError, ValueError):
+        return False
+
+
+def _run(args: argparse.Namespace, model, out: Path, done: list) -> int:
+    from ..pipeline import run
+    from ..post.writers import check_output_folder, format_summary, write
+
+    check_output_folder(out)        # refuse a folder of the user's files before solving
     progress = None if args.quiet else Announcer(sys.stderr)
     result = run(model, method=args.method, refine=args.refine, progress=progress,
                  estimate=not args.no_estimate)
-    out = Path(args.out) if args.out else Path(f"{model.stem}-results")
+    done.append(result)
     if progress:
         progress("writing", "start")
     try:
@@ -38,11 +67,12 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 def cmd_check(args: argparse.Namespace) -> int:
     from ..fem.geometry import build_geometry
-    from ..fem.mesh import build_mesh
+    from ..fem.mesh import build_mesh, check_outlines
     from ..model import load
     from ..pipeline.adaptive import check_budget
 
-    model = load(args.model, params=parse_sets(args.set))
+    model = load(args.model, params=parse_sets(args.set), node_limit=args.node_limit)
+    check_outlines(model, refine=args.refine)
     geometry = build_geometry(model, refine=args.refine)
     mesh = build_mesh(geometry)
     check_budget(mesh)

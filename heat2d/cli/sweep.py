@@ -17,7 +17,7 @@ from ..sweep import (
     parse_vary,
     sweep,
 )
-from .common import EXIT_BAD_INPUT, EXIT_FAILURE, EXIT_OK, parse_sets
+from .common import EXIT_BAD_INPUT, EXIT_FAILURE, EXIT_OK, Terminated, parse_sets
 
 
 def add_sweep_arguments(parser: argparse.ArgumentParser) -> None:
@@ -103,7 +103,7 @@ def run_sweep_command(args: argparse.Namespace) -> int:
     from ..model import load
 
     vary = parse_vary(args.vary)
-    model = load(args.model, params=parse_sets(args.set))
+    model = load(args.model, params=parse_sets(args.set), node_limit=args.node_limit)
     out = Path(args.out) if args.out else Path(f"{model.stem}-sweep")
     bar = None if args.quiet else ProgressBar(sys.stderr)
     try:
@@ -114,6 +114,12 @@ def run_sweep_command(args: argparse.Namespace) -> int:
     except ClusterError as exc:
         print(f"error: {exc.message()}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except (KeyboardInterrupt, Terminated) as exc:
+        # The workers are stopped; each finished variant's folder is complete and its
+        # inputs.json lets the same sweep run again skip it. sweep.csv is not rewritten.
+        exc.heat2d_outputs = (f"workers stopped; the variants finished so far are kept in "
+                              f"{out} (the same sweep run again solves only the rest)")
+        raise
     finally:
         if bar is not None:
             bar.close()

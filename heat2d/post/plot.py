@@ -66,7 +66,14 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     for k, ax in enumerate(axes):
         tri = triangulations[k]
         lo, hi = ranges[k]
-        levels = np.linspace(lo, hi if hi > lo else lo + 1e-9, LEVELS + 1)
+        uniform = _uniform(lo, hi)
+        if uniform:
+            # One band half a kelvin either side of the single value: contour levels
+            # closer than round-off are refused by matplotlib.
+            mid = 0.5 * (lo + hi)
+            levels = np.array([mid - 0.5, mid + 0.5])
+        else:
+            levels = np.linspace(lo, hi, LEVELS + 1)
         if len(tri.triangles) > RASTER_ABOVE and not show_mesh:
             # Large meshes: contour a pixel grid sampled from the linear field (exact at
             # the picture's resolution, several times faster than contouring every triangle).
@@ -77,11 +84,14 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
             contour, contour_lines = ax.tricontourf, ax.tricontour
             args = (tri, T)
         filled = contour(*args, levels=levels, cmap="inferno", extend="both")
-        bar = fig.colorbar(filled, ax=ax, shrink=0.95, format="%.1f", pad=0.01)
-        bar.set_label("temperature (°C)")
-        lines = contour_lines(*args, levels=levels[::4], colors="k", linewidths=0.4,
-                              alpha=0.6)
-        ax.clabel(lines, fmt="%.1f", fontsize=7, inline=True)
+        fmt = _label_format(lo, hi)
+        bar = fig.colorbar(filled, ax=ax, shrink=0.95, format=fmt, pad=0.01,
+                           ticks=[mid] if uniform else None)
+        bar.set_label("temperature (°C)" + (" (uniform)" if uniform else ""))
+        if not uniform:             # a uniform field has no isotherms
+            lines = contour_lines(*args, levels=levels[::4], colors="k", linewidths=0.4,
+                                  alpha=0.6)
+            ax.clabel(lines, fmt=fmt, fontsize=7, inline=True)
         if show_mesh:
             ax.triplot(tri, color="white", lw=0.15, alpha=0.5)
         _outlines(ax, result)
@@ -131,6 +141,25 @@ def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None
     if path is not None:
         fig.savefig(path, dpi=110)
     return fig
+
+
+UNIFORM_SPAN = 1e-6
+"""A panel whose temperature spread is below this fraction of max(1, |T|) °C is drawn
+as a uniform field: one colour and a colour bar with its single value."""
+
+
+def _uniform(lo: float, hi: float) -> bool:
+    """Whether the range [lo, hi] is one value to round-off (an unpowered model)."""
+    return hi - lo <= UNIFORM_SPAN * max(1.0, abs(lo), abs(hi))
+
+
+def _label_format(lo: float, hi: float) -> str:
+    """Colour-bar and isotherm labels with enough decimals that the ticks (about six
+    over the range) differ: one decimal for spreads of a few kelvin and more."""
+    if _uniform(lo, hi):
+        return "%.2f"
+    decimals = int(np.clip(np.ceil(-np.log10((hi - lo) / 6)), 1, 9))
+    return f"%.{decimals}f"
 
 
 RASTER_ABOVE = 100_000

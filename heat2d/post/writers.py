@@ -1,23 +1,26 @@
 """Stage 7: :class:`~heat2d.post.results.Result` -> files.
 
-Every writer puts one file into a scratch folder; :func:`write` moves them
-into place only when all have succeeded, so a failed run leaves nothing
-half-written.
+Every writer puts one file into a new folder beside the result folder; :func:`write`
+swaps it in only when all have succeeded, so the result folder is always absent, the
+previous complete result or the new one.
 """
 
 from __future__ import annotations
 
+import errno
 import json
 import os
+import re
+import secrets
 import shutil
-import tempfile
+import sys
 from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import Heat2dError
+from ..errors import Heat2dError, ModelError
 
 if TYPE_CHECKING:                 # annotations only: results imports this module
     from .results import Result
@@ -75,14 +78,25 @@ each ignores the options that are not its own."""
 
 def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None = None,
           stem: str | None = None, **options) -> list[Path]:
-    """Write the outputs of a run into ``out_dir`` (created if needed), all or nothing.
+    """Write the outputs of a run into ``out_dir``, all or nothing.
+
+    At every moment ``out_dir`` is absent, the previous complete result or the new
+    complete result, even when the process is interrupted or killed: the files are
+    written into a new sibling folder ``.NAME.new-PID-RANDOM`` (same file system) that
+    replaces ``out_dir`` only when every file is there (see :func:`write_folder`).
+
+    Files in an existing ``out_dir`` that heat2d did not write (any name other than the
+    :data:`WRITERS` patterns, e.g. ``notes.txt`` or a subfolder) are never deleted: the
+    write is refused with :class:`OutputFolderError` naming the folder, before any file is
+    written. Earlier outputs (``summary.json``, ``summary.txt``, ``*.vtu``, ``*.png``),
+    including those of another model's stem, are replaced together as the previous result.
 
     Parameters
     ----------
     result
         From :func:`heat2d.run`.
     out_dir
-        Destination folder.
+        Destination folder (its parents are created if needed).
     formats
         Names from :data:`WRITERS`; all by default.
     stem
@@ -93,7 +107,7 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
     Returns
     -------
     list of Path
-        The files written.
+        The files written (under ``out_dir`` as given).
     """
     names = list(WRITERS) if formats is None else list(formats)
     unknown = sorted(set(names) - set(WRITERS))
@@ -101,28 +115,208 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
         raise Heat2dError(f"unknown output format {unknown[0]!r} (choose from: "
                           f"{', '.join(sorted(WRITERS))})")
     stem = stem or result.model.stem
-    out = Path(out_dir)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise Heat2dError(f"cannot create output folder: {exc}", file=str(out)) from None
-    scratch = Path(tempfile.mkdtemp(prefix=".heat2d-partial-", dir=out))
-    try:
-        written = []
+
+    def fill(folder: Path) -> list[str]:
+        files = []
         for name in names:
             pattern, func = WRITERS[name]
-            target = scratch / pattern.format(stem=stem)
-            func(result, target, **options)
-            written.append(target)
-        final = []
-        for f in written:
-            os.replace(f, out / f.name)
-            final.append(out / f.name)
-        return final
+            func(result, folder / pattern.format(stem=stem), **options)
+            files.append(pattern.format(stem=stem))
+        return files
+
+    return write_folder(out_dir, fill)
+
+
+class OutputFolderError(ModelError):
+    """The output folder cannot take the results (it holds the user's own files, is a
+    file, or is the working folder): bad input, nothing written."""
+
+
+_SIBLING = re.compile(r"\.(?P<name>.+)\.(?P<kind>new|old|del)-(?P<pid>\d+)-[0-9a-f]+\Z",
+                      re.DOTALL)
+"""Scratch siblings of a result folder: ``new`` (being written, or after the exchange the
+replaced result), ``old`` (the previous complete result, set aside during a two-rename
+swap) and ``del`` (being removed, possibly incomplete: never restored)."""
+_LEGACY_SCRATCH = ".heat2d-partial-"
+"""Scratch folders that earlier releases left inside the result folder."""
+
+
+def is_output_name(name: str) -> bool:
+    """Whether a file name is one :func:`write` produces (for some stem)."""
+    return any(re.fullmatch(".+".join(re.escape(part) for part in pattern.split("{stem}")),
+                            name, re.DOTALL) for pattern, _ in WRITERS.values())
+
+
+def write_folder(out_dir: str | Path, fill: Callable[[Path], Iterable[str]], *,
+                 is_output: Callable[[str], bool] = is_output_name) -> list[Path]:
+    """Replace the folder ``out_dir`` by the files ``fill(folder)`` writes, all or nothing.
+
+    1. Leftovers of dead processes beside ``out_dir`` are cleared first: if ``out_dir``
+       is missing but a ``.NAME.old-*`` complete result is there, it is restored; other
+       ``.NAME.new-*``, ``.old-*``, ``.del-*`` siblings whose process id is not alive are
+       removed.
+    2. ``fill`` writes into a new sibling ``.NAME.new-PID-RANDOM``.
+    3. The new folder is swapped in. On Linux ``renameat2(RENAME_EXCHANGE)`` exchanges
+       the two folders in one atomic step, so ``out_dir`` always exists. Elsewhere (or on
+       a file system without it) the old folder is renamed to ``.NAME.old-...`` and the
+       new one into place: between these two renames ``out_dir`` is briefly absent, and a
+       process killed there leaves the complete ``.old-`` folder, which the next write
+       restores. With no previous folder the new one is renamed into place (atomic).
+    4. The replaced folder is renamed to ``.NAME.del-...`` and removed.
+
+    Any exception or interrupt before step 3 removes the new folder and leaves
+    ``out_dir`` as it was. :class:`OutputFolderError` if ``out_dir`` holds entries for
+    which ``is_output`` is false (checked before ``fill`` runs and again before the swap),
+    is a file, or contains the working folder; :class:`~heat2d.errors.Heat2dError` on
+    other file-system failures.
+
+    Returns
+    -------
+    list of Path
+        ``out_dir / name`` for every name ``fill`` returned.
+    """
+    given = Path(out_dir)
+    target = check_output_folder(given, is_output=is_output)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        recover(target)
+        _refuse_foreign(target, given, is_output)
+        scratch = _sibling(target, "new")
+        scratch.mkdir()
     except OSError as exc:
-        raise Heat2dError(f"cannot write outputs: {exc}", file=str(out)) from None
-    finally:
+        raise Heat2dError(f"cannot create output folder: {exc}", file=str(given)) from None
+    try:
+        names = list(fill(scratch))
+        _refuse_foreign(target, given, is_output)
+        _swap_in(scratch, target)
+    except OSError as exc:
         shutil.rmtree(scratch, ignore_errors=True)
+        raise Heat2dError(f"cannot write outputs: {exc}", file=str(given)) from None
+    except BaseException:           # a failed writer, Ctrl-C, SIGTERM: out_dir untouched
+        shutil.rmtree(scratch, ignore_errors=True)
+        raise
+    return [given / name for name in names]
+
+
+def check_output_folder(out_dir: str | Path, *,
+                        is_output: Callable[[str], bool] = is_output_name) -> Path:
+    """Refuse an output folder :func:`write_folder` could not replace without losing
+    the user's files (:class:`OutputFolderError`); returns the folder that will be
+    replaced (absolute, a symbolic link followed). Cheap: callers check before solving."""
+    given = Path(out_dir)
+    target = Path(os.path.abspath(given))
+    if target.is_symlink():         # replace the linked folder, keep the user's link
+        target = Path(os.path.realpath(target))
+    if target.exists() and not target.is_dir():
+        raise OutputFolderError("the output folder is a file", file=str(given))
+    cwd = Path.cwd()
+    if cwd == target or target in cwd.parents:
+        raise OutputFolderError("the output folder contains the working folder; choose "
+                                "another folder", file=str(given))
+    _refuse_foreign(target, given, is_output)
+    return target
+
+
+def recover(target: Path) -> None:
+    """Restore or remove the scratch siblings of ``target`` left by dead processes."""
+    dead = []
+    with os.scandir(target.parent) as entries:
+        for entry in entries:
+            m = _SIBLING.match(entry.name)
+            if m and m["name"] == target.name and not _alive(int(m["pid"])):
+                dead.append((m["kind"], Path(entry.path)))
+    if not os.path.lexists(target):
+        old = sorted((p for kind, p in dead if kind == "old"),
+                     key=lambda p: p.stat().st_mtime)
+        if old:                     # killed between the two renames of a swap
+            os.rename(old[-1], target)
+            dead.remove(("old", old[-1]))
+    for _, path in dead:
+        shutil.rmtree(path, ignore_errors=True)
+
+
+def _alive(pid: int) -> bool:
+    """Whether process ``pid`` runs (a zombie counts as dead; a process of another user
+    as alive). A reused pid only delays the clean-up of a leftover."""
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)             # signal 0: existence check, nothing is sent
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return True
+    try:
+        stat = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return True
+    return stat.rpartition(")")[2].split()[:1] != ["Z"]
+
+
+def _sibling(target: Path, kind: str) -> Path:
+    return target.with_name(f".{target.name}.{kind}-{os.getpid()}-{secrets.token_hex(4)}")
+
+
+def _refuse_foreign(target: Path, given: Path, is_output: Callable[[str], bool]) -> None:
+    try:
+        with os.scandir(target) as entries:
+            foreign = sorted(e.name for e in entries
+                             if not ((e.name.startswith(_LEGACY_SCRATCH) and e.is_dir())
+                                     or (e.is_file(follow_symlinks=False)
+                                         and is_output(e.name))))
+    except FileNotFoundError:
+        return
+    if foreign:
+        shown = ", ".join(foreign[:3]) + (f" and {len(foreign) - 3} more"
+                                          if len(foreign) > 3 else "")
+        raise OutputFolderError(f"the output folder holds files heat2d did not write "
+                                f"({shown}); move them or choose another folder (nothing "
+                                "was written)", file=str(given))
+
+
+def _swap_in(new: Path, target: Path) -> None:
+    """Put the complete folder ``new`` in place of ``target`` (steps 3 and 4 above)."""
+    if not os.path.lexists(target):
+        os.rename(new, target)      # atomic; fails if target appeared meanwhile
+        return
+    if _exchange(new, target):
+        replaced = new              # now holds the previous result
+    else:
+        replaced = _sibling(target, "old")
+        try:
+            os.rename(target, replaced)
+            os.rename(new, target)
+        except BaseException:       # put the previous result back before going on
+            if not os.path.lexists(target) and os.path.lexists(replaced):
+                os.rename(replaced, target)
+            raise
+    trash = _sibling(target, "del")
+    os.rename(replaced, trash)
+    shutil.rmtree(trash, ignore_errors=True)
+
+
+_RENAME_EXCHANGE = 2
+_AT_FDCWD = -100
+
+
+def _exchange(a: Path, b: Path) -> bool:
+    """Exchange two paths atomically with Linux ``renameat2``; False where unsupported."""
+    if not sys.platform.startswith("linux"):
+        return False
+    import ctypes
+
+    try:
+        func = ctypes.CDLL(None, use_errno=True).renameat2
+    except (OSError, AttributeError):
+        return False
+    func.argtypes = [ctypes.c_int, ctypes.c_char_p, ctypes.c_int, ctypes.c_char_p,
+                     ctypes.c_uint]
+    if func(_AT_FDCWD, os.fsencode(a), _AT_FDCWD, os.fsencode(b), _RENAME_EXCHANGE) == 0:
+        return True
+    err = ctypes.get_errno()
+    if err in (errno.EINVAL, errno.ENOSYS, errno.ENOTSUP, errno.EPERM):
+        return False
+    raise OSError(err, os.strerror(err), str(b))
 
 
 def _fmt(value: float | None, spec: str = ".2f") -> str:

@@ -21,6 +21,8 @@ DEFAULT_CONNECT_TIMEOUT_S = 10.0
 """Seconds to wait for a cluster's scheduler and a first worker (``--cluster-timeout``)."""
 WORKER_CHECK_S = 5.0
 """While waiting for a cluster's results, check this often that the workers are still there."""
+STOP_WAIT_S = 5.0
+"""After an interrupt, how long to wait for a terminated worker process before killing it."""
 
 
 class ClusterError(Heat2dError):
@@ -170,15 +172,51 @@ def _run_in_processes(tasks: list[_Task], jobs: int, finish) -> None:
 
     context = multiprocessing.get_context("spawn")
     chunks = _chunks(tasks, jobs)
-    pools = [ProcessPoolExecutor(max_workers=1, mp_context=context) for _ in chunks]
+    pools = [ProcessPoolExecutor(max_workers=1, mp_context=context, initializer=_worker_start)
+             for _ in chunks]
+    finished = False
     try:
         futures = {pool.submit(_worker_run, t): t
                    for pool, chunk in zip(pools, chunks, strict=False) for t in chunk}
         for fut in as_completed(futures):
             finish(_outcome(fut, futures[fut]))
+        finished = True
     finally:
-        for pool in pools:
-            pool.shutdown(wait=True, cancel_futures=True)
+        if finished:
+            for pool in pools:
+                pool.shutdown(wait=True, cancel_futures=True)
+        else:                       # Ctrl-C, SIGTERM or a failure here: stop the workers
+            _stop_workers(pools)
+
+
+def _worker_start() -> None:
+    """Start each worker process in its own process group, so a Ctrl-C at the terminal
+    reaches only the sweep, which then stops its workers (no signal handler is set)."""
+    if hasattr(os, "setpgrp"):
+        os.setpgrp()
+
+
+def _stop_workers(pools: list) -> None:
+    """Cancel the variants not started and end the worker processes now.
+
+    ``shutdown(cancel_futures=True)`` alone lets a running variant finish (minutes on a
+    large model), so the processes are terminated: a variant cut short has written
+    nothing (writes are all or nothing) and is solved again by the next sweep.
+    """
+    processes = []
+    for pool in pools:
+        # The executor's worker processes: a private attribute of concurrent.futures,
+        # the only handle on them before Python 3.14's terminate_workers().
+        processes += list((getattr(pool, "_processes", None) or {}).values())
+        pool.shutdown(wait=False, cancel_futures=True)
+    for proc in processes:
+        if proc.is_alive():
+            proc.terminate()
+    for proc in processes:
+        proc.join(timeout=STOP_WAIT_S)
+        if proc.is_alive():
+            proc.kill()
+            proc.join(timeout=STOP_WAIT_S)
 
 
 def _outcome(fut, task: _Task) -> dict[str, Any]:

@@ -8,12 +8,11 @@ import dataclasses
 import hashlib
 import json
 import os
-import shutil
-import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from ..errors import Heat2dError
 from ..model import Model
 from ..version import __version__
 from .grid import _Variant
@@ -66,10 +65,12 @@ def _stored_row(folder: Path, digest: str) -> dict[str, Any] | None:
 def _clear_stale(folder: Path) -> None:
     """Before a variant runs again: remove its old inputs.json and the files it listed."""
     path = folder / INPUTS_NAME
+    # A half-written temporary of an interrupted run goes too (a file heat2d wrote).
+    path.with_name(f".{INPUTS_NAME}.partial").unlink(missing_ok=True)
     try:
         stored = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
-        return
+        stored = None
     path.unlink(missing_ok=True)
     for name in stored.get("files", []) if isinstance(stored, dict) else []:
         if isinstance(name, str) and "/" not in name and "\\" not in name:
@@ -87,22 +88,24 @@ def _store(folder: Path, v: _Variant, outcome: dict[str, Any]) -> dict[str, Any]
         _replace_text(folder / INPUTS_NAME, json.dumps(
             {"heat2d_version": __version__, "input_hash": v.digest, "values": v.values,
              "files": files, "row": row}, indent=2, allow_nan=False) + "\n")
+    except Heat2dError as exc:
+        return {"index": v.index, "status": "failed", "error": exc.message()}
     except (OSError, ValueError) as exc:
         return {"index": v.index, "status": "failed", "error": f"cannot write outputs: {exc}"}
     return outcome
 
 
 def _place(folder: Path, files: dict[str, bytes]) -> None:
-    """Write files received from a worker, all or nothing (as :func:`writers.write`)."""
-    folder.mkdir(parents=True, exist_ok=True)
-    scratch = Path(tempfile.mkdtemp(prefix=".heat2d-partial-", dir=folder))
-    try:
+    """Write files received from a worker, all or nothing (as :func:`writers.write`:
+    the folder is swapped in whole)."""
+    from ..post.writers import write_folder
+
+    def fill(scratch: Path) -> list[str]:
         for name, data in files.items():
             (scratch / name).write_bytes(data)
-        for name in files:
-            os.replace(scratch / name, folder / name)
-    finally:
-        shutil.rmtree(scratch, ignore_errors=True)
+        return list(files)
+
+    write_folder(folder, fill)
 
 
 def _replace_text(path: Path, text: str) -> None:
