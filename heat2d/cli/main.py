@@ -13,12 +13,20 @@ from collections.abc import Callable, Sequence
 
 from ..errors import Heat2dError, ModelError
 from ..version import __version__
-from .common import EXIT_BAD_INPUT, EXIT_FAILURE, UsageError
+from .common import (
+    EXIT_BAD_INPUT,
+    EXIT_FAILURE,
+    Terminated,
+    UsageError,
+    interrupted,
+    on_sigterm,
+    restore_sigterm,
+)
 from .run import cmd_check, cmd_run
 
 
 def cmd_verify(args: argparse.Namespace) -> int:
-    from ..verify import run_verify_command
+    from .verify import run_verify_command
 
     return run_verify_command(args)
 
@@ -55,7 +63,7 @@ def build_parser() -> argparse.ArgumentParser:
     for name, (_, help_text) in COMMANDS.items():
         p = sub.add_parser(name, help=help_text, description=help_text)
         if name == "verify":
-            from ..verify import add_verify_arguments
+            from .verify import add_verify_arguments
 
             add_verify_arguments(p)
             continue
@@ -65,6 +73,9 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--refine", type=float, default=1.0, metavar="FACTOR",
                        help="divide every target mesh size by FACTOR (mesh-convergence checks)")
         p.add_argument("--debug", action="store_true", help="show tracebacks of failures")
+        p.add_argument("--node-limit", type=int, metavar="N",
+                       help="most nodes a mesh may have (default: [mesh] node_limit, "
+                            "5000000); checked on an estimate before meshing")
         if name == "sweep":
             _sweep_arguments(p)
         if name == "run":
@@ -84,7 +95,24 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; returns the exit status."""
+    """Run the command line; returns the exit status.
+
+    Ctrl-C exits 130 and SIGTERM 143, each with one line on stderr saying what became of
+    the outputs; the SIGTERM handler is set only while this runs.
+    """
+    previous = on_sigterm()
+    try:
+        return _dispatch(argv)
+    except (KeyboardInterrupt, Terminated) as exc:
+        line, status = interrupted(exc)
+        print(line, file=sys.stderr, flush=True)
+        return status
+    finally:
+        restore_sigterm(previous)
+
+
+def _dispatch(argv: Sequence[str] | None) -> int:
+    """Parse the arguments and run the command (the body of :func:`main`)."""
     parser = build_parser()
     args = parser.parse_args(argv)
     if args.refine <= 0:

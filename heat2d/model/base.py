@@ -12,6 +12,7 @@ import math
 from typing import Any
 
 from ..errors import ModelError
+from . import ranges
 from .expr import ExpressionError, evaluate
 from .lines import LineIndex
 
@@ -30,7 +31,7 @@ _ALLOWED = {
     "interface": {"name", "between", "resistance"},
     "boundary": {"name", "on", "temperature", "heat_flux", "h", "ambient", "emissivity",
                  "surroundings"},
-    "mesh": {"size", "min_angle", "accuracy", "max_nodes"},
+    "mesh": {"size", "min_angle", "accuracy", "max_nodes", "node_limit"},
     "probe": {"name", "at", "accuracy"},
 }
 
@@ -42,6 +43,8 @@ class BaseReader:
         self.source = source
         self.index = index
         self.names: dict[str, float] = {}
+        self.unit = "m"
+        self.unit_m = 1.0
 
     # -- error helpers
     def fail(self, entry: str, reason: str, line: int | None) -> ModelError:
@@ -57,16 +60,24 @@ class BaseReader:
 
     def number(self, value: Any, entry: str, key: str, where: tuple[str, int], *,
                low: float | None = None, high: float | None = None,
-               low_open: bool = False, what: str = "") -> float:
+               low_open: bool = False, what: str = "",
+               within: tuple[float, float] | None = None, unit: str | None = None) -> float:
+        """A number or expression, checked against ``low``/``high`` (sign and hard limits,
+        reported as ``must be > 0``) and then the plausible range ``within`` (stated in
+        ``unit``, by default ``what``)."""
         line = self.index.find(where[0], where[1], key.split("[")[0].split(".")[0])
         if isinstance(value, bool) or not isinstance(value, int | float | str):
             raise self.fail(entry, f"{key}: expected a number or an expression string, "
-                            f"got {type(value).__name__} {value!r}", line)
+                            f"got {type(value).__name__} {brief(value)}", line)
         if isinstance(value, str):
             try:
                 value = evaluate(value, self.names)
             except ExpressionError as exc:
                 raise self.fail(entry, f"{key}: {exc}", line) from None
+        if isinstance(value, int) and abs(value) > ranges.MAX_INTEGER:
+            raise self.fail(entry, f"{key}: must be a number of magnitude at most "
+                            f"{ranges.MAX_INTEGER:g}, got an integer of {len(str(abs(value)))} "
+                            "digits", line)
         value = float(value)
         if not math.isfinite(value):
             raise self.fail(entry, f"{key}: must be a finite number, got {value}", line)
@@ -75,7 +86,24 @@ class BaseReader:
             raise self.fail(entry, f"{key}: must be {rel} {low:g}{what}, got {value:g}", line)
         if high is not None and value > high:
             raise self.fail(entry, f"{key}: must be <= {high:g}{what}, got {value:g}", line)
+        if within is not None and not within[0] <= value <= within[1]:
+            raise self.fail(entry, f"{key}: must be between {within[0]:g} and {within[1]:g}"
+                            f"{what if unit is None else unit}, got {value:g}", line)
         return value
+
+    def size(self, value: Any, entry: str, key: str, where: tuple[str, int], *,
+             bounds_m: tuple[float, float] = ranges.SIZE_M) -> float:
+        """A positive length in the model unit, within ``bounds_m`` (metres) converted."""
+        low, high = (b / self.unit_m for b in bounds_m)
+        return self.number(value, entry, key, where, low=0.0, low_open=True,
+                           within=(float(f"{low:.6g}"), float(f"{high:.6g}")),
+                           unit=f" {self.unit}")
+
+    def coordinate(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> float:
+        """A coordinate or offset in the model unit, at most COORDINATE_M from the origin."""
+        bound = float(f"{ranges.COORDINATE_M / self.unit_m:.6g}")
+        return self.number(value, entry, key, where, within=(-bound, bound),
+                           unit=f" {self.unit}")
 
     def table(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> dict[str, Any]:
         if not isinstance(value, dict):
@@ -85,7 +113,7 @@ class BaseReader:
 
     def string(self, value: Any, entry: str, key: str, where: tuple[str, int]) -> str:
         if not isinstance(value, str) or not value.strip():
-            raise self.fail(entry, f"{key}: expected a non-empty string, got {value!r}",
+            raise self.fail(entry, f"{key}: expected a non-empty string, got {brief(value)}",
                             self.index.find(where[0], where[1], key))
         return value.strip()
 
@@ -98,9 +126,10 @@ class BaseReader:
 
     def point(self, p: Any, entry: str, key: str, where: tuple[str, int]) -> tuple[float, float]:
         if not isinstance(p, list) or len(p) != 2:
-            raise self.fail(entry, f"{key}: expected [x, y], got {p!r}",
+            raise self.fail(entry, f"{key}: expected [x, y], got {brief(p)}",
                             self.index.find(*where, key.split("[")[0]))
-        return (self.number(p[0], entry, key, where), self.number(p[1], entry, key, where))
+        return (self.coordinate(p[0], entry, key, where),
+                self.coordinate(p[1], entry, key, where))
 
     def named_entry(self, spec: dict[str, Any], table: str, i: int, seen: set[str]
                     ) -> tuple[str, str, tuple[str, int]]:
@@ -115,3 +144,9 @@ class BaseReader:
                             self.index.find(*where, "name"))
         seen.add(name)
         return name, entry, where
+
+
+def brief(value: Any) -> str:
+    """A value as quoted in messages, at most one short line."""
+    text = repr(value)
+    return text if len(text) <= 60 else text[:45] + " ... " + text[-10:]

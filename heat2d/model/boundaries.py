@@ -10,7 +10,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from .base import BaseReader
+from . import ranges
+from .base import BaseReader, brief
 from .schema import (
     ABSOLUTE_ZERO_C,
     BOUNDARY_KEYS,
@@ -63,21 +64,24 @@ class BoundaryReader(BaseReader):
                 values["surroundings"] = self.number(
                     spec.get("surroundings", spec.get("ambient")), entry,
                     "surroundings" if "surroundings" in spec else "ambient", where,
-                    low=ABSOLUTE_ZERO_C, low_open=True, what=" °C")
+                    low=ABSOLUTE_ZERO_C, low_open=True, high=ranges.TEMPERATURE_C, what=" °C")
             if kind == "temperature":
                 values["temperature"] = self.number(spec["temperature"], entry, "temperature",
                                                     where, low=ABSOLUTE_ZERO_C, low_open=True,
-                                                    what=" °C")
+                                                    high=ranges.TEMPERATURE_C, what=" °C")
             elif kind == "heat_flux":
-                values["heat_flux"] = self.number(spec["heat_flux"], entry, "heat_flux", where)
+                values["heat_flux"] = self.number(
+                    spec["heat_flux"], entry, "heat_flux", where,
+                    within=(-ranges.HEAT_FLUX, ranges.HEAT_FLUX), what=" W/m²")
             elif kind == "convection":
                 if "ambient" not in spec:
                     raise self.fail(entry, "convection needs ambient (°C) beside h",
                                     self.index.find(*where, "h"))
                 values["h"] = self.number(spec["h"], entry, "h", where, low=0.0, low_open=True,
-                                          what=" W/(m²·K)")
+                                          within=ranges.FILM_COEFFICIENT, what=" W/(m²·K)")
                 values["ambient"] = self.number(spec["ambient"], entry, "ambient", where,
-                                                low=ABSOLUTE_ZERO_C, low_open=True, what=" °C")
+                                                low=ABSOLUTE_ZERO_C, low_open=True,
+                                                high=ranges.TEMPERATURE_C, what=" °C")
             out.append(Boundary(name=name, index=i, selector=selector, kind=kind,
                                 line=self.index.find(*where), **values))
         return out
@@ -91,14 +95,14 @@ class BoundaryReader(BaseReader):
             box = on["box"]
             if not isinstance(box, list) or len(box) != 4:
                 raise self.fail(entry, "on: box needs [x0, y0, x1, y1]", line)
-            x0, y0, x1, y1 = (self.number(v, entry, "on.box", where) for v in box)
+            x0, y0, x1, y1 = (self.coordinate(v, entry, "on.box", where) for v in box)
             if not (x1 > x0 and y1 > y0):
                 raise self.fail(entry, f"on: box needs x0 < x1 and y0 < y1, got "
                                 f"{[x0, y0, x1, y1]}", line)
             return Selector("box", box=(x0, y0, x1, y1))
         if not isinstance(on, str) or not on:
             raise self.fail(entry, f"on: expected a selector string or {{ box = [...] }}, "
-                            f"got {on!r}", line)
+                            f"got {brief(on)}", line)
         if on == "exterior":
             return Selector("exterior")
         if on in shapes or on in groups:
@@ -143,6 +147,6 @@ class BoundaryReader(BaseReader):
             if "resistance" not in spec:
                 raise self.fail(entry, "needs resistance (m²·K/W)", self.index.find(*where))
             r = self.number(spec["resistance"], entry, "resistance", where, low=0.0,
-                            low_open=True, what=" m²·K/W")
+                            low_open=True, within=ranges.RESISTANCE, what=" m²·K/W")
             out.append(Interface(name, i, pair[0], pair[1], r, self.index.find(*where)))
         return out

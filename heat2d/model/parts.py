@@ -11,6 +11,7 @@ import math
 from dataclasses import replace
 from typing import Any
 
+from . import ranges
 from .base import BaseReader
 from .schema import ABSOLUTE_ZERO_C, SIDES, Group, Material, Shape
 
@@ -77,17 +78,20 @@ class ShapeReader(BaseReader):
                             self.index.find(*where, "power"))
         out: dict[str, float | None] = {}
         if "power" in spec:
-            out["power"] = self.number(spec["power"], entry, "power", where, low=0.0, what=" W")
+            out["power"] = self.number(spec["power"], entry, "power", where, low=0.0,
+                                       high=ranges.POWER_W, what=" W")
         if "power_density" in spec:
             out["power_density"] = self.number(spec["power_density"], entry, "power_density",
-                                               where, low=0.0, what=" W/m³")
+                                               where, low=0.0, high=ranges.POWER_DENSITY,
+                                               what=" W/m³")
         for key in ("mesh_size",):
             if key in spec:
-                out[key] = self.number(spec[key], entry, key, where, low=0.0, low_open=True)
+                out[key] = self.size(spec[key], entry, key, where, bounds_m=ranges.MESH_SIZE_M)
         if "max_temperature" in spec:
             out["max_temperature"] = self.number(spec["max_temperature"], entry,
                                                  "max_temperature", where, low=ABSOLUTE_ZERO_C,
-                                                 low_open=True, what=" °C")
+                                                 low_open=True, high=ranges.TEMPERATURE_C,
+                                                 what=" °C")
         return out
 
     def read_shape(self, spec: dict[str, Any], i: int) -> tuple[list[Shape], Group | None]:
@@ -119,10 +123,10 @@ class ShapeReader(BaseReader):
         if kind == "rect":
             r = self.table(spec["rect"], entry, "rect", where)
             self.exact_keys(r, {"x", "y", "width", "height"}, entry, "rect", where)
-            x = self.number(r["x"], entry, "rect.x", where)
-            y = self.number(r["y"], entry, "rect.y", where)
-            w = self.number(r["width"], entry, "rect.width", where, low=0.0, low_open=True)
-            h = self.number(r["height"], entry, "rect.height", where, low=0.0, low_open=True)
+            x = self.coordinate(r["x"], entry, "rect.x", where)
+            y = self.coordinate(r["y"], entry, "rect.y", where)
+            w = self.size(r["width"], entry, "rect.width", where)
+            h = self.size(r["height"], entry, "rect.height", where)
             points = _rect_points(x, y, w, h)
         elif kind == "polygon":
             pts = spec["polygon"]
@@ -134,9 +138,9 @@ class ShapeReader(BaseReader):
         else:
             c = self.table(spec["circle"], entry, "circle", where)
             self.exact_keys(c, {"x", "y", "r"}, entry, "circle", where)
-            circle = (self.number(c["x"], entry, "circle.x", where),
-                      self.number(c["y"], entry, "circle.y", where),
-                      self.number(c["r"], entry, "circle.r", where, low=0.0, low_open=True))
+            circle = (self.coordinate(c["x"], entry, "circle.x", where),
+                      self.coordinate(c["y"], entry, "circle.y", where),
+                      self.size(c["r"], entry, "circle.r", where))
         if "vias" in spec:
             material = self.via_material(spec["vias"], name, material, entry, where)
         base = Shape(name=name, index=i, kind=kind, material=material, void=void,
@@ -148,12 +152,13 @@ class ShapeReader(BaseReader):
         self.check_keys(rep, "repeat", entry, where)
         if "count" not in rep:
             raise self.fail(entry, "repeat: needs count (and dx, dy)", self.index.find(*where))
-        count = self.number(rep["count"], entry, "repeat.count", where, low=1)
+        count = self.number(rep["count"], entry, "repeat.count", where, low=1,
+                            high=ranges.REPEAT_COUNT, what=" copies")
         if count != int(count):
             raise self.fail(entry, f"repeat.count: must be a whole number, got {count:g}",
                             self.index.find(*where, "repeat"))
-        dx = self.number(rep.get("dx", 0.0), entry, "repeat.dx", where)
-        dy = self.number(rep.get("dy", 0.0), entry, "repeat.dy", where)
+        dx = self.coordinate(rep.get("dx", 0.0), entry, "repeat.dx", where)
+        dy = self.coordinate(rep.get("dy", 0.0), entry, "repeat.dy", where)
         if dx == 0 and dy == 0 and count > 1:
             raise self.fail(entry, "repeat: dx and dy are both 0, the copies would coincide",
                             self.index.find(*where, "repeat"))
@@ -181,10 +186,9 @@ class ShapeReader(BaseReader):
                 raise self.fail(entry, f"vias: needs {key} (drill, plating, pitch in the "
                                 "length unit; metal = the plating material)",
                                 self.index.find(*where, "vias"))
-        drill = self.number(via["drill"], entry, "vias.drill", where, low=0.0, low_open=True)
-        plating = self.number(via["plating"], entry, "vias.plating", where, low=0.0,
-                              low_open=True)
-        pitch = self.number(via["pitch"], entry, "vias.pitch", where, low=0.0, low_open=True)
+        drill = self.size(via["drill"], entry, "vias.drill", where)
+        plating = self.size(via["plating"], entry, "vias.plating", where)
+        pitch = self.size(via["pitch"], entry, "vias.pitch", where)
         line = self.index.find(*where, "vias")
         if plating >= drill / 2:
             raise self.fail(entry, f"vias: plating {plating:g} must be less than the drill "
@@ -231,11 +235,11 @@ class ShapeReader(BaseReader):
             if key not in spec:
                 raise self.fail(entry, f"needs {key} (x, y: lower-left corner; width; layers "
                                 "bottom to top)", self.index.find(*where))
-        x = self.number(spec["x"], entry, "x", where)
-        y0 = self.number(spec["y"], entry, "y", where)
-        width = self.number(spec["width"], entry, "width", where, low=0.0, low_open=True)
-        size = (self.number(spec["mesh_size"], entry, "mesh_size", where, low=0.0,
-                            low_open=True) if "mesh_size" in spec else None)
+        x = self.coordinate(spec["x"], entry, "x", where)
+        y0 = self.coordinate(spec["y"], entry, "y", where)
+        width = self.size(spec["width"], entry, "width", where)
+        size = (self.size(spec["mesh_size"], entry, "mesh_size", where,
+                          bounds_m=ranges.MESH_SIZE_M) if "mesh_size" in spec else None)
         layers = spec["layers"]
         line = self.index.find(*where, "layers")
         if not isinstance(layers, list) or not layers or not all(isinstance(v, dict)
@@ -256,8 +260,7 @@ class ShapeReader(BaseReader):
                 raise self.fail(lentry, f"a layer cannot be called left, right, top or bottom "
                                 f"({name}.{lname} selects a side of the stack); try "
                                 f"{lname}_cu", line)
-            t = self.number(layer.get("thickness"), lentry, "thickness", where, low=0.0,
-                            low_open=True)
+            t = self.size(layer.get("thickness"), lentry, "thickness", where)
             material = self.material_ref(layer.get("material"), lentry, "material", where)
             if "coverage" in layer:
                 phi = self.number(layer["coverage"], lentry, "coverage", where, low=0.0,

@@ -20,6 +20,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import ModelError
+from . import ranges
+from .base import brief
 from .boundaries import BoundaryReader
 from .expr import CONSTANTS, FUNCTIONS
 from .lines import LineIndex
@@ -38,7 +40,8 @@ from .schema import (
 )
 
 
-def load(path: str | Path, *, params: Mapping[str, float | str] | None = None) -> Model:
+def load(path: str | Path, *, params: Mapping[str, float | str] | None = None,
+         node_limit: int | None = None) -> Model:
     """Read and check a model file.
 
     Parameters
@@ -47,6 +50,9 @@ def load(path: str | Path, *, params: Mapping[str, float | str] | None = None) -
         The TOML model file.
     params
         Parameter overrides by name (numbers or expressions), as ``--set`` does.
+    node_limit
+        Overrides ``[mesh] node_limit`` (the most nodes a mesh may have), as
+        ``--node-limit`` does; kept in the model's data, so edited copies keep it.
 
     Raises
     ------
@@ -58,26 +64,65 @@ def load(path: str | Path, *, params: Mapping[str, float | str] | None = None) -
         text = path.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as exc:
         raise ModelError(f"cannot read model file: {exc}", file=str(path)) from None
-    return parse(text, source=str(path), params=params)
+    return parse(text, source=str(path), params=params, node_limit=node_limit)
 
 
 def parse(text: str, *, source: str = "<string>",
-          params: Mapping[str, float | str] | None = None) -> Model:
+          params: Mapping[str, float | str] | None = None,
+          node_limit: int | None = None) -> Model:
     """Check model text and build a :class:`Model`; see :func:`load`."""
     try:
         data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        m = re.search(r"\(at line (\d+), column \d+\)", msg)
-        line = int(m.group(1)) if m else None
-        reason = re.sub(r"\s*\(at line \d+, column \d+\)", "", msg)
-        raise ModelError(f"not valid TOML: {reason}", file=source, entry="syntax",
-                         line=line) from None
+    except RecursionError:
+        raise ModelError(f"not valid TOML: arrays or tables nested too deeply (at most "
+                         f"{ranges.MAX_TOML_DEPTH} levels)", file=source, entry="syntax",
+                         line=None) from None
+    except ValueError as exc:               # an integer beyond int()'s digit limit
+        if isinstance(exc, tomllib.TOMLDecodeError):
+            raise _syntax_error(exc, source) from None
+        m = re.search(r"\d{100,}", text)
+        line = text.count("\n", 0, m.start()) + 1 if m else None
+        raise ModelError(f"number too long: at most {ranges.MAX_INTEGER:g} in magnitude",
+                         file=source, entry="syntax", line=line) from None
     index = LineIndex(text)
+    _check_depth(data, source, index)
+    if node_limit is not None and isinstance(data.get("mesh", {}), dict):
+        data.setdefault("mesh", {})["node_limit"] = node_limit
     order = [(t, i) for t in ("shape", "stack")
              for i in range(len(data.get(t, [])) if isinstance(data.get(t), list) else 0)]
     order.sort(key=lambda e: index.find(*e) or 0)
     return _Reader(source, index).read(data, dict(params or {}), order)
+
+
+def _syntax_error(exc: tomllib.TOMLDecodeError, source: str) -> ModelError:
+    msg = str(exc)
+    m = re.search(r"\(at line (\d+), column \d+\)", msg)
+    line = int(m.group(1)) if m else None
+    reason = re.sub(r"\s*\(at line \d+, column \d+\)", "", msg)
+    return ModelError(f"not valid TOML: {reason}", file=source, entry="syntax", line=line)
+
+
+def _check_depth(data: Mapping[str, Any], source: str, index: LineIndex) -> None:
+    """Refuse tables and arrays nested deeper than MAX_TOML_DEPTH (walked without
+    recursion), naming the entry that holds them."""
+    for top, value in data.items():
+        entries = [(f"[{top}]", value, 1, index.find(top) or index.find("", 0, top))]
+        if isinstance(value, list) and all(isinstance(v, dict) for v in value):
+            entries = [(f"{top} \"{v['name']}\"" if isinstance(v.get("name"), str)
+                        else f"{top} #{i + 1}", v, 2, index.find(top, i))
+                       for i, v in enumerate(value)]
+        for entry, node, depth, line in entries:
+            stack = [(node, depth)]
+            while stack:
+                node, depth = stack.pop()
+                if depth > ranges.MAX_TOML_DEPTH:
+                    raise ModelError(f"arrays or tables nested more than "
+                                     f"{ranges.MAX_TOML_DEPTH} deep", file=source,
+                                     entry=entry, line=line)
+                if isinstance(node, dict):
+                    stack += [(v, depth + 1) for v in node.values()]
+                elif isinstance(node, list):
+                    stack += [(v, depth + 1) for v in node]
 
 
 def from_dict(data: Mapping[str, Any], *, source: str = "<dict>",
@@ -97,6 +142,7 @@ def from_dict(data: Mapping[str, Any], *, source: str = "<dict>",
         (``"shape"`` or ``"stack"``, index) pairs in painting order; by default all
         shapes, then all stacks.
     """
+    _check_depth(data, source, LineIndex(""))
     data = copy.deepcopy(dict(data))
     if paint_order is None:
         paint_order = [(t, i) for t in ("shape", "stack")
@@ -117,9 +163,9 @@ class _Reader(ShapeReader, BoundaryReader):
         model = self.table(data.get("model", {}), "[model]", "model", ("", 0))
         self.check_keys(model, "model", "[model]", ("model", 0))
         unit = model.get("length_unit", "m")
-        if unit not in LENGTH_UNITS:
+        if not isinstance(unit, str) or unit not in LENGTH_UNITS:
             raise self.fail("[model]", f"length_unit: must be one of "
-                            f"{', '.join(sorted(LENGTH_UNITS))}, got {unit!r}",
+                            f"{', '.join(sorted(LENGTH_UNITS))}, got {brief(unit)}",
                             self.index.find("model", 0, "length_unit"))
         title = model.get("title", "")
         if not isinstance(title, str):
@@ -132,10 +178,11 @@ class _Reader(ShapeReader, BoundaryReader):
         if axisymmetric and "depth" in model:
             raise self.fail("[model]", "depth: an axisymmetric model is solved for the full "
                             "revolution and takes no depth", self.index.find("model", 0, "depth"))
+        self.unit, self.unit_m = unit, LENGTH_UNITS[unit]
         params = self.read_params(data.get("params", {}), overrides)
         default_depth = 1.0 / LENGTH_UNITS[unit]
-        depth = self.number(model.get("depth", default_depth), "[model]", "depth",
-                            ("model", 0), low=0.0, low_open=True)
+        depth = self.size(model.get("depth", default_depth), "[model]", "depth",
+                          ("model", 0))
         materials = self.read_materials(data.get("materials", {}))
         self.materials = materials
         shapes, groups = self.read_shapes(data, order)
@@ -215,7 +262,7 @@ class _Reader(ShapeReader, BoundaryReader):
         """A number, or a table [[°C, k], ...] increasing in temperature."""
         if not isinstance(value, list):
             return self.number(value, entry, key, where, low=0.0, low_open=True,
-                               what=" W/(m·K)"), None
+                               within=ranges.CONDUCTIVITY, what=" W/(m·K)"), None
         line = self.index.find(*where, key)
         if len(value) < 2:
             raise self.fail(entry, f"{key}: a table needs at least two [°C, W/(m·K)] points",
@@ -223,11 +270,13 @@ class _Reader(ShapeReader, BoundaryReader):
         rows = []
         for j, row in enumerate(value):
             if not isinstance(row, list) or len(row) != 2:
-                raise self.fail(entry, f"{key}[{j}]: expected [°C, W/(m·K)], got {row!r}", line)
+                raise self.fail(entry, f"{key}[{j}]: expected [°C, W/(m·K)], got {brief(row)}",
+                                line)
             t = self.number(row[0], entry, f"{key}[{j}] temperature", where,
-                            low=ABSOLUTE_ZERO_C, low_open=True, what=" °C")
+                            low=ABSOLUTE_ZERO_C, low_open=True, high=ranges.TEMPERATURE_C,
+                            what=" °C")
             k = self.number(row[1], entry, f"{key}[{j}] conductivity", where, low=0.0,
-                            low_open=True, what=" W/(m·K)")
+                            low_open=True, within=ranges.CONDUCTIVITY, what=" W/(m·K)")
             if rows and t <= rows[-1][0]:
                 raise self.fail(entry, f"{key}: table temperatures must increase, got "
                                 f"{rows[-1][0]:g} then {t:g} °C", line)
@@ -247,27 +296,29 @@ class _Reader(ShapeReader, BoundaryReader):
             accuracy = None
             if "accuracy" in spec:
                 accuracy = self.number(spec["accuracy"], entry, "accuracy", where, low=0.0,
-                                       low_open=True, what=" K")
+                                       low_open=True, high=ranges.ACCURACY_K, what=" K")
             out.append(Probe(name, x, y, self.index.find(*where), accuracy))
         return out
 
     def read_mesh(self, raw: Any) -> MeshSettings:
         raw = self.table(raw, "[mesh]", "mesh", ("", 0))
         self.check_keys(raw, "mesh", "[mesh]", ("mesh", 0))
+        where = ("mesh", 0)
         size = None
         if "size" in raw:
-            size = self.number(raw["size"], "[mesh]", "size", ("mesh", 0), low=0.0,
-                               low_open=True)
-        angle = self.number(raw.get("min_angle", 30.0), "[mesh]", "min_angle", ("mesh", 0),
+            size = self.size(raw["size"], "[mesh]", "size", where, bounds_m=ranges.MESH_SIZE_M)
+        angle = self.number(raw.get("min_angle", 30.0), "[mesh]", "min_angle", where,
                             low=0.0, high=MAX_MIN_ANGLE, what=" degrees")
         accuracy = None
         if "accuracy" in raw:
-            accuracy = self.number(raw["accuracy"], "[mesh]", "accuracy", ("mesh", 0), low=0.0,
-                                   low_open=True, what=" K")
-        budget = self.number(raw.get("max_nodes", 200_000), "[mesh]", "max_nodes", ("mesh", 0),
-                             low=100)
+            accuracy = self.number(raw["accuracy"], "[mesh]", "accuracy", where, low=0.0,
+                                   low_open=True, high=ranges.ACCURACY_K, what=" K")
+        budget = self.number(raw.get("max_nodes", 200_000), "[mesh]", "max_nodes", where,
+                             low=100, high=ranges.MAX_NODES)
+        limit = self.number(raw.get("node_limit", ranges.NODE_LIMIT), "[mesh]", "node_limit",
+                            where, low=ranges.MIN_NODE_LIMIT, high=ranges.MAX_NODES)
         return MeshSettings(size=size, min_angle=angle, accuracy=accuracy,
-                            max_nodes=int(budget))
+                            max_nodes=int(budget), node_limit=int(limit))
 
 
 use_checker(from_dict)                      # Model.edited and with_* check through from_dict

@@ -196,14 +196,16 @@ class Probe:
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Target edge length (model units; None = automatic), minimum angle (degrees), and
-    for adaptive refinement the accuracy wanted on the max temperature (K) and the node
-    budget."""
+    """Target edge length (model units; None = automatic), minimum angle (degrees), for
+    adaptive refinement the accuracy wanted on the max temperature (K) and the node
+    budget, and the node limit: the most nodes any mesh may have (checked on an estimate
+    before meshing)."""
 
     size: float | None = None
     min_angle: float = 30.0
     accuracy: float | None = None
     max_nodes: int = 200_000
+    node_limit: int = 5_000_000
 
 
 @dataclass(frozen=True)

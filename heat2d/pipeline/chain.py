@@ -16,7 +16,7 @@ import numpy as np
 
 from ..fem.assembly import assemble
 from ..fem.geometry import build_geometry
-from ..fem.mesh import build_mesh
+from ..fem.mesh import build_mesh, check_outlines
 from ..fem.solver import solve
 from ..model import Model
 from ..post.results import Result, brief_figures, compute_results
@@ -87,6 +87,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
             progress(name, "end")
         return value
 
+    check_outlines(model, refine=refine)                # circles: before the geometry
     old = reuse.solution if reuse is not None else None
     if old is not None and not (model.adaptive and adaptive) and \
             geometry_key(old.model, old.mesh.geometry.refine) == geometry_key(model, refine):

@@ -8,7 +8,8 @@ from __future__ import annotations
 import itertools
 import math
 import re
-from collections.abc import Mapping, Sequence
+import sys
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -18,17 +19,39 @@ from ..model.expr import ExpressionError, evaluate
 
 MAX_FOLDER_NAME = 120
 """Longer ``NAME=VALUE,...`` folder names become ``variantNNNN``."""
+MAX_VARIANTS = 10_000
+"""Most variants one sweep runs, and most values one ``--vary`` list holds (guard: checked
+on the counts before any value list or variant is built)."""
+
+
+class Oversized(Sequence):
+    """A ``--vary`` list longer than MAX_VARIANTS, kept as its length only: the sweep
+    refuses it after checking its name against the model's params."""
+
+    def __init__(self, count: int) -> None:
+        self.count = count
+
+    def __len__(self) -> int:
+        return min(self.count, sys.maxsize)
+
+    def __getitem__(self, index):  # never materialised
+        raise IndexError("an oversized value list holds no values")
+
+    def __iter__(self) -> Iterator[float]:
+        return iter(())
 
 
 # ---------------------------------------------------------------------------
 # Reading --vary
 
 
-def parse_values(text: str, *, name: str = "value") -> list[float | str]:
+def parse_values(text: str, *, name: str = "value") -> list[float | str] | Oversized:
     """Values from ``V1,V2,...``; an item ``start:stop:count`` is ``count`` evenly spaced
     values from start to stop, both included.
 
-    Items that are not numbers are kept as expressions (checked by :func:`sweep`).
+    Items that are not numbers are kept as expressions (checked by :func:`sweep`). A list
+    of more than MAX_VARIANTS values is returned as an :class:`Oversized` count (ranges
+    are counted before they are expanded), which :func:`sweep` refuses.
 
     Raises
     ------
@@ -38,11 +61,14 @@ def parse_values(text: str, *, name: str = "value") -> list[float | str]:
     entry = f"--vary {name}"
     if not text.strip():
         raise ModelError("empty value list: give V1,V2,... or start:stop:count", entry=entry)
+    items = [item.strip() for item in _split_top_level(text)]
+    if "" in items:
+        raise ModelError(f"empty value in {text!r}", entry=entry)
+    counts = [_range(item, entry, count_only=True)[0] if ":" in item else 1 for item in items]
+    if sum(counts) > MAX_VARIANTS:
+        return Oversized(sum(counts))
     out: list[float | str] = []
-    for item in _split_top_level(text):
-        item = item.strip()
-        if not item:
-            raise ModelError(f"empty value in {text!r}", entry=entry)
+    for item in items:
         if ":" in item:
             out += _range(item, entry)
         else:
@@ -62,7 +88,8 @@ def _split_top_level(text: str) -> list[str]:
     return parts
 
 
-def _range(item: str, entry: str) -> list[float]:
+def _range(item: str, entry: str, *, count_only: bool = False) -> list[float]:
+    """The values of ``start:stop:count`` (with ``count_only``: ``[count]``)."""
     parts = item.split(":")
     problem = "expected start:stop:count"
     if len(parts) == 3:
@@ -74,10 +101,12 @@ def _range(item: str, entry: str) -> list[float]:
         else:
             if not (math.isfinite(start) and math.isfinite(stop)):
                 problem = "start and stop must be finite numbers"
-            elif count != int(count) or count < 1:
+            elif not math.isfinite(count) or count != int(count) or count < 1:
                 problem = f"count must be a whole number >= 1, got {parts[2].strip()}"
             else:
                 n = int(count)
+                if count_only:
+                    return [n]
                 if n == 1:
                     return [start]
                 # Evenly spaced, rounded to 12 significant digits so that 0.1 steps stay
@@ -133,6 +162,12 @@ def _check_vary(model: Model, vary: Mapping[str, Any], paired: bool
             values = parse_values(values, name=name)
         elif isinstance(values, int | float):
             values = [values]
+        if len(values) > MAX_VARIANTS:
+            count = getattr(values, "count", len(values))
+            raise ModelError(f"{count if count < 10**15 else format(count, '.3g')} values are "
+                             f"more than the {MAX_VARIANTS} "
+                             "variants a sweep runs; use fewer values or several sweeps",
+                             file=model.source, entry=entry)
         values = list(values)
         if not values:
             raise ModelError("empty value list", entry=entry)
@@ -152,6 +187,12 @@ def _check_vary(model: Model, vary: Mapping[str, Any], paired: bool
         if len(lengths) > 1:
             counts = ", ".join(f"{n}: {len(v)}" for n, v in out.items())
             raise ModelError(f"--zip needs lists of one length ({counts})", entry="--vary")
+    total = len(next(iter(out.values()))) if paired else math.prod(len(v) for v in out.values())
+    if total > MAX_VARIANTS:
+        counts = " × ".join(f"{len(v)} {n}" for n, v in out.items())
+        raise ModelError(f"the grid has {total} variants ({counts}), more than the "
+                         f"{MAX_VARIANTS} a sweep runs; use fewer values, --zip, or several "
+                         "sweeps", file=model.source, entry="--vary")
     return out
 
 
