@@ -185,8 +185,8 @@ def test_zip_pairs_the_lists_and_plots_one_line(tmp_path):
 
 
 def test_values_only_variants_share_one_mesh_and_one_factorization_per_matrix(monkeypatch):
-    import heat2d.pipeline
     import heat2d.fem.solver
+    import heat2d.pipeline
 
     meshes, factors = [], []
     build_mesh, factor_init = heat2d.pipeline.chain.build_mesh, heat2d.fem.solver.Factor.__init__

@@ -149,7 +149,17 @@ def test_outputs_are_written_all_or_nothing(tmp_path, monkeypatch):
     out = tmp_path / "v"
     with pytest.raises(Heat2dError, match="cannot write outputs: disk full"):
         heat2d.verify.write_outputs(list(records_of("composite_wall")), out)
-    assert list(out.iterdir()) == []                    # no verify.json without its plot
+    # No verify.json without its plot: the folder was never created, nor a scratch sibling.
+    assert not out.exists() and list(tmp_path.iterdir()) == []
+    # Over an earlier complete pair, a failed write keeps that pair.
+    monkeypatch.undo()
+    good = heat2d.verify.write_outputs(list(records_of("composite_wall")), out)
+    before = {f.name: f.read_bytes() for f in good}
+    monkeypatch.setattr(report, "plot_convergence", no_plot)
+    with pytest.raises(Heat2dError, match="cannot write outputs: disk full"):
+        heat2d.verify.write_outputs([], out)
+    assert {f.name: f.read_bytes() for f in out.iterdir()} == before
+    assert [f.name for f in tmp_path.iterdir()] == ["v"]
 
 
 def test_library_function_and_unknown_case():

@@ -29,22 +29,47 @@ class Terminated(BaseException):
     BaseException, so that no ``except Exception`` turns it into a failure."""
 
 
+_received: list[int] = []
+"""Signals that arrived while :func:`main` ran. The exception a handler raises can be
+wrapped (an exception inside ``__set_name__`` during a lazy import becomes a
+RuntimeError) or swallowed (inside a finalizer); the record is not."""
+
+
 def _raise_terminated(signum: int, frame: Any) -> None:
+    _received.append(signum)
     raise Terminated()
 
 
+def _raise_interrupt(signum: int, frame: Any) -> None:
+    _received.append(signum)
+    raise KeyboardInterrupt()
+
+
 def on_sigterm() -> Any:
-    """Make SIGTERM raise :class:`Terminated`; returns the previous handler (None when not
-    on the main thread, where no handler can be set)."""
+    """Make SIGTERM raise :class:`Terminated` and Ctrl-C (SIGINT, unless it is ignored)
+    raise KeyboardInterrupt, recording each arrival; returns the previous handlers (None
+    when not on the main thread, where no handler can be set)."""
     if threading.current_thread() is not threading.main_thread():
         return None
-    return signal.signal(signal.SIGTERM, _raise_terminated)
+    _received.clear()
+    previous = {signal.SIGTERM: signal.signal(signal.SIGTERM, _raise_terminated)}
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:
+        previous[signal.SIGINT] = signal.signal(signal.SIGINT, _raise_interrupt)
+    return previous
 
 
 def restore_sigterm(previous: Any) -> None:
-    """Put back the handler :func:`on_sigterm` returned."""
-    if previous is not None:
-        signal.signal(signal.SIGTERM, previous)
+    """Put back the handlers :func:`on_sigterm` returned."""
+    for signum, handler in (previous or {}).items():
+        signal.signal(signum, handler)
+
+
+def received() -> BaseException | None:
+    """The interrupt that arrived while the command ran (SIGTERM before Ctrl-C), if any,
+    as the exception its handler raised."""
+    if signal.SIGTERM in _received:
+        return Terminated()
+    return KeyboardInterrupt() if signal.SIGINT in _received else None
 
 
 def interrupted(exc: BaseException) -> tuple[str, int]:

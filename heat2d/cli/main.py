@@ -16,10 +16,13 @@ from ..version import __version__
 from .common import (
     EXIT_BAD_INPUT,
     EXIT_FAILURE,
+    EXIT_LIMIT,
+    EXIT_OK,
     Terminated,
     UsageError,
     interrupted,
     on_sigterm,
+    received,
     restore_sigterm,
 )
 from .run import cmd_check, cmd_run
@@ -102,7 +105,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     """
     previous = on_sigterm()
     try:
-        return _dispatch(argv)
+        status = _dispatch(argv)
+        late = received()
+        if late is None:
+            return status
+        # The interrupt's exception was swallowed on its way (in a finalizer, say) and the
+        # command ran to its end: its outputs are complete.
+        late.heat2d_outputs = ("the command had finished; its outputs are complete"
+                               if status in (EXIT_OK, EXIT_LIMIT) else "no output written")
+        raise late
     except (KeyboardInterrupt, Terminated) as exc:
         line, status = interrupted(exc)
         print(line, file=sys.stderr, flush=True)
@@ -129,11 +140,17 @@ def _dispatch(argv: Sequence[str] | None) -> int:
         print(f"error: {exc.message()}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except Heat2dError as exc:
+        late = received()
+        if late is not None:     # e.g. the mesher's failure caused by an interrupt
+            raise late from exc
         if args.debug:
             traceback.print_exc()
         print(f"error: {exc.message()}", file=sys.stderr)
         return EXIT_FAILURE
     except Exception as exc:  # report, never dump a traceback unless asked
+        late = received()
+        if late is not None:     # an interrupt that Python wrapped in another exception
+            raise late from exc
         if args.debug:
             traceback.print_exc()
         print(f"internal error: {type(exc).__name__}: {exc} (run with --debug for details)",

@@ -102,6 +102,6 @@ def cmd_check(args: argparse.Namespace) -> int:
         print(f"{m.name:<20} {m.kx:>9.4g} {m.ky:>9.4g}  {m.note}{varies}")
     print(f"\nmesh: {len(mesh.points)} nodes, {len(mesh.triangles)} triangles, smallest angle "
           f"{mesh.min_angle():.1f}°, target size {geometry.size:g} {unit}")
-    for w in geometry.warnings:
+    for w in (*geometry.warnings, *mesh.warnings):
         print(f"warning: {w}")
     return EXIT_OK

@@ -7,7 +7,7 @@ regional attribute, and each face's target edge length becomes an area bound.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -16,6 +16,12 @@ from .geometry import DEFAULT_SIZE_FRACTION, MIN_CIRCLE_SEGMENTS, Geometry, circ
 
 EQUILATERAL_AREA = np.sqrt(3.0) / 4.0
 """Area of an equilateral triangle of unit side: target size h -> area bound."""
+MESH_GROWTH = 5.0
+"""A first mesh with more than this many times the estimated nodes is said: the bundled
+models mesh to 2.1 to 2.4 times the estimate (the estimate stays below real meshes), a
+sliver forcing the mesher far below its target size to ten or a hundred times."""
+GROWTH_FLOOR = 20_000
+"""Meshes this small are cheap whatever forced them: no warning."""
 NODES_PER_BOUND = 0.75
 """Nodes per area bound √3/4·h² of a quality mesh: a mesh of equilateral triangles at the
 bound has 1/2 node per triangle; the mesher's triangles average about 0.6 of the bound,
@@ -63,6 +69,8 @@ class Mesh:
     interface_b: np.ndarray
     interface_id: np.ndarray
     axis_length: float = 0.0
+    warnings: tuple[str, ...] = ()
+    """Said of the mesh itself (one forced far finer than its target sizes)."""
     raw: dict = field(default_factory=dict, compare=False, repr=False)
     cache: dict = field(init=False, default_factory=dict, compare=False, repr=False)
     """Figures of the mesh alone (areas, smallest angle), shared by variants that reuse it."""
@@ -137,7 +145,32 @@ def build_mesh(geometry: Geometry) -> Mesh:
     }
     if len(geometry.holes):
         data["holes"] = geometry.holes
-    return _finish(geometry, _triangulate(geometry, data, ""))
+    mesh = _finish(geometry, _triangulate(geometry, data, ""))
+    said = _growth(mesh)
+    return replace(mesh, warnings=said) if said else mesh
+
+
+def _growth(mesh: Mesh) -> tuple[str, ...]:
+    """A warning when the mesher made far more nodes than the areas and sizes call for: a
+    sliver or a tiny gap forced it below the target size (a decimal slip, usually)."""
+    geometry = mesh.geometry
+    expected = estimate_nodes(geometry)
+    n = len(mesh.points)
+    if n <= GROWTH_FLOOR or n <= MESH_GROWTH * (expected.sum() + len(geometry.vertices)):
+        return ()
+    # The shape holding most nodes beyond its estimate (a node per two triangles), and
+    # where its smallest triangles are.
+    shapes = geometry.model.shapes
+    extra = np.bincount(mesh.triangle_shape, minlength=len(shapes)) / 2 - expected
+    worst = int(np.argmax(extra))
+    mine = np.flatnonzero(mesh.triangle_shape == worst)
+    small = mine[np.argsort(mesh.areas[mine])[:max(1, len(mine) // 100)]]
+    x, y = mesh.points[mesh.triangles[small]].reshape(-1, 2).mean(axis=0)
+    ratio = n / (expected.sum() + len(geometry.vertices))
+    return (f"the mesh has {n} nodes, {ratio:.0f} times what the areas and sizes call for: "
+            f"shape \"{shapes[worst].name}\" has triangles far below its target size near "
+            f"({x:.6g}, {y:.6g}), where a sliver or a tiny gap forces them (check the "
+            "coordinates there, or join the pieces)",)
 
 
 def estimate_nodes(geometry: Geometry) -> np.ndarray:

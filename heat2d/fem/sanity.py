@@ -93,7 +93,8 @@ def _scale(model: Model, visible: list, size: float, extent: float) -> list[str]
     span_m = extent * model.unit_m
     if span_m > MAX_EXTENT_M:
         hint = "mm numbers in a metre model" if unit == "m" else "the numbers in µm"
-        out.append(f"the model spans {extent:g} {unit} = {span_m:g} m: are {hint}, or is a "
+        span = f"{extent:g} m" if unit == "m" else f"{extent:g} {unit} = {span_m:g} m"
+        out.append(f"the model spans {span}: are {hint}, or is a "
                    f"shape misplaced? (length_unit = \"{unit}\")")
     if span_m < MIN_EXTENT_M.get(unit, 0.0):
         hint = "mm numbers in a metre model" if unit == "m" else "metre numbers"

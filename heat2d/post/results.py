@@ -21,6 +21,9 @@ from ..version import __version__
 
 REACTION_ROUNDOFF = 1e-6
 """Warn when the reactions' round-off bound exceeds this fraction of the balance scale."""
+UNTRUSTED_BALANCE = 1e-3
+"""An ill-conditioned system whose energy balance is open by more than this is refused as
+input: its heat flows are round-off, not results."""
 ROUNDOFF_FLOWS = 100.0
 """With nothing powered, boundary flows below this many times the reactions' round-off
 bound are round-off, not heat: the balance is then 0 by definition."""
@@ -226,8 +229,15 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                              line=probe.line)
         probes[probe.name] = float(bary @ T[tri[k]])
 
-    warnings = [*mesh.geometry.warnings, *system.warnings, *solution.notes]
+    warnings = [*mesh.geometry.warnings, *mesh.warnings, *system.warnings, *solution.notes]
     warnings += [balance["note"]] if "note" in balance else []
+    if "note" in balance and abs(balance["relative_error"]) > UNTRUSTED_BALANCE:
+        k = np.maximum(system.kx, system.ky)
+        name = model.materials[mesh.triangle_material[np.argmax(k)]].name
+        raise ModelError(f"ill-conditioned system: k = {k.max():g} W/(m·K) leaves the energy "
+                         f"balance open by {balance['relative_error']:.1e}, so no heat flow "
+                         "can be trusted; use a conductivity within a few decades of the "
+                         "others", file=model.source, entry=f'material "{name}"')
     if abs(balance["relative_error"]) > REACTION_ROUNDOFF:
         warnings.append(f"energy balance closes only to {balance['relative_error']:.1e} "
                         f"(heat out {balance['heat_out_w']:.6g} W, power in "
@@ -395,8 +405,14 @@ def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float]
     # largest boundary flow (heat through the body from a hot to a cold boundary), unless
     # that flow is itself round-off (a body held at one temperature carries none).
     largest = float(np.abs(heat[:nb]).max()) if nb else 0.0
-    if power_in == 0 and largest <= ROUNDOFF_FLOWS * roundoff:
-        largest = 0.0
+    if power_in == 0:
+        # Round-off of the whole solve: the solver's relative residual (ε at best) of the
+        # terms Σ_j|K_ij||T_j| every row sums; a convecting or radiating body at one
+        # temperature leaves flows of that size and no more.
+        noise = max(np.finfo(float).eps, solution.residual or 0.0) * float(
+            (abs(system.K) @ np.abs(T)).sum())
+        if largest <= ROUNDOFF_FLOWS * max(roundoff, noise):
+            largest = 0.0
     scale = abs(power_in) if power_in != 0 else largest
     balance = {"power_in_w": power_in, "generated_w": generated, "heat_flux_in_w": flux_in,
                "heat_out_w": heat_out,

@@ -7,13 +7,9 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import shutil
-import tempfile
 from pathlib import Path
 from typing import Any
 
-from ..errors import Heat2dError
 from ..version import __version__
 from .manufactured import slope
 from .table import read_table
@@ -137,28 +133,21 @@ def write_outputs(records: list[Record], out_dir: str | Path, *,
     Heat2dError
         The folder cannot be created or a file cannot be written (nothing is left).
     """
-    out = Path(out_dir)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-        scratch = Path(tempfile.mkdtemp(prefix=".heat2d-verify-", dir=out))
-    except OSError as exc:
-        raise Heat2dError(f"cannot create output folder: {exc}", file=str(out)) from None
-    try:
-        document = {"heat2d_version": __version__, "passed": all(r["passed"] for r in records),
-                    "checks": len(records), "failed": sum(not r["passed"] for r in records),
-                    "seconds": seconds, "records": [_finite(r) for r in records]}
-        (scratch / "verify.json").write_text(json.dumps(document, indent=2, allow_nan=False)
-                                             + "\n", encoding="utf-8")
-        plot_convergence(records, scratch / "verify.png")
-        final = []
-        for name in ("verify.json", "verify.png"):
-            os.replace(scratch / name, out / name)
-            final.append(out / name)
-        return final
-    except OSError as exc:
-        raise Heat2dError(f"cannot write outputs: {exc}", file=str(out)) from None
-    finally:
-        shutil.rmtree(scratch, ignore_errors=True)
+    from ..post.writers import write_folder
+
+    names = ("verify.json", "verify.png")
+    document = {"heat2d_version": __version__, "passed": all(r["passed"] for r in records),
+                "checks": len(records), "failed": sum(not r["passed"] for r in records),
+                "seconds": seconds, "records": [_finite(r) for r in records]}
+
+    def fill(folder: Path) -> tuple[str, ...]:
+        (folder / names[0]).write_text(json.dumps(document, indent=2, allow_nan=False) + "\n",
+                                       encoding="utf-8")
+        plot_convergence(records, folder / names[1])
+        return names
+
+    # The folder is swapped in whole, as a run's is (absent, the old pair or the new one).
+    return write_folder(out_dir, fill, is_output=lambda name: name in names)
 
 
 def _finite(record: Record) -> Record:

@@ -1,0 +1,174 @@
+"""Property tests: no model text makes ``heat2d run`` or ``heat2d check`` break the exit
+contract (tests/contract.py: status 0, 2, or 3 under ``--strict``; one stderr line
+naming the file and nothing written on 2; the four outputs, finite numbers and a closed
+energy balance on 0).
+
+Models come from tests/strategies.py: small valid models and mutations of them. Each
+example runs the command line in a forked child with a time and memory limit. The
+number of examples comes from the hypothesis profile (tests/conftest.py): ``ci`` by
+default (derandomized, bounded time); ``HYPOTHESIS_PROFILE=slow`` for long runs, which
+also runs the tests marked ``slow`` (mutations of the bundled models). The longest runs
+go through benchmarks/fuzz_models.py with the same strategies.
+
+A breach fails the test with an exception class named after its kind, so hypothesis
+shrinks and reports each kind of breach separately.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+import tempfile
+import tomllib
+from pathlib import Path
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from tests.common import board
+from tests.contract import (
+    BALANCE_TOLERANCE,
+    MODEL_NAME,
+    Outcome,
+    breaches,
+    kind_of,
+    run_case,
+    warm_up,
+)
+from tests.strategies import model_texts, models, mutate, mutated_texts, to_toml
+
+ROOT = Path(__file__).resolve().parents[1]
+TIMEOUT_S = 40.0  # a child still running then is a hang (the deadline is the profile's)
+_KINDS: dict[str, type[AssertionError]] = {}
+
+
+@pytest.fixture(scope="module", autouse=True)
+def _warm(tmp_path_factory):
+    warm_up(board(), tmp_path_factory.mktemp("warm"))
+
+
+def assert_contract(text: str, command: str) -> None:
+    """Run ``command`` on ``text`` and fail with one exception class per breach kind."""
+    folder = Path(tempfile.mkdtemp(prefix="heat2d-prop-"))
+    try:
+        outcome = run_case(text, command, folder, timeout=TIMEOUT_S)
+        found = breaches(outcome, folder, command)
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+    if found:
+        kind = kind_of(found[0])
+        cls = _KINDS.setdefault(kind, type("Breach: " + kind, (AssertionError,), {}))
+        raise cls(f"{command}: " + "; ".join(found) + f"\n--- {MODEL_NAME} ---\n{text}")
+
+
+def test_to_toml_writes_what_tomllib_reads_back():
+    # The writer must give back the same document, or every property below tests a
+    # different model than it claims.
+    @given(models())
+    @settings(max_examples=20, deadline=None)
+    def round_trip(doc):
+        assert tomllib.loads(to_toml(doc)) == doc
+
+    round_trip()
+
+
+def test_contract_detects_a_breach(tmp_path):
+    # A model the reader refuses, run for real: exit 2 with one line, nothing written,
+    # so no breach; the same outcome read against a stray output folder is one.
+    outcome = run_case(board({"k = 385": "k = -1"}), "run", tmp_path)
+    assert outcome.status == 2 and breaches(outcome, tmp_path, "run") == []
+    assert "material \"copper\"" in outcome.stderr and MODEL_NAME in outcome.stderr
+    (tmp_path / "out").mkdir()
+    assert breaches(outcome, tmp_path, "run") == ["written on exit 2: []"]
+
+
+def test_contract_reads_the_outputs_of_exit_0(tmp_path):
+    # Fabricated outputs of an exit 0: a NaN in summary.json, then a balance that the
+    # reported figure calls closed but the boundaries' own sum does not.
+    out = tmp_path / "out"
+    out.mkdir()
+    stem = Path(MODEL_NAME).stem
+    for name in (f"{stem}.vtu", "summary.txt", f"{stem}.png"):
+        (out / name).write_text("x")
+    ok = Outcome(argv=[], status=0)
+    assert breaches(ok, tmp_path, "run") == ["missing outputs on exit 0: ['summary.json']"]
+    (out / "summary.json").write_text('{"temperature": {"max": NaN}}')
+    assert breaches(ok, tmp_path, "run") == [
+        "non-finite summary.json: summary.json holds NaN"]
+    eb = {"generated_w": 1.0, "power_in_w": 1.0, "heat_out_w": 1.0, "relative_error": 0.0}
+    summary = {"energy_balance": eb, "temperature": {"max": 30.0, "min": 20.0},
+               "boundaries": {"a": {"heat_out_w": 0.5}, "b": {"heat_out_w": 0.5 + 2e-6}}}
+    (out / "summary.json").write_text(json.dumps(summary))
+    found = breaches(ok, tmp_path, "run")
+    assert len(found) == 1 and found[0].startswith("energy balance independent 2e-06")
+    summary["boundaries"]["b"]["heat_out_w"] = 0.5 + 0.5 * BALANCE_TOLERANCE
+    (out / "summary.json").write_text(json.dumps(summary))
+    assert breaches(ok, tmp_path, "run") == []
+    assert breaches(Outcome(argv=[], status=1, stderr="error: x\n"), tmp_path, "run") == [
+        "exit 1: error: x"]
+
+
+@given(text=models().map(to_toml), command=st.sampled_from(["run", "run --strict"]))
+@settings(max_examples=max(settings().max_examples // 2, 1))  # a solve and four files each
+def test_valid_models_keep_the_contract(text, command):
+    assert_contract(text, command)
+
+
+@given(text=mutated_texts(), command=st.sampled_from(["run", "run --strict"]))
+@settings(max_examples=max(settings().max_examples * 2, 1))
+def test_mutated_models_keep_the_contract(text, command):
+    assert_contract(text, command)
+
+
+@given(text=model_texts())
+def test_check_keeps_the_contract(text):
+    assert_contract(text, "check")
+
+
+# Models on which the properties above failed (minimal by hand from the shrunk
+# examples), kept so that each stays fixed.
+UNPOWERED_PLATE = """
+[model]
+length_unit = "mm"
+
+[materials.m]
+k = 1
+
+[[shape]]
+name = "plate"
+material = "m"
+rect = { x = 0, y = 0, width = 10, height = 2 }
+
+[[boundary]]
+name = "air"
+on = "plate.bottom"
+h = 10
+ambient = 20
+"""
+FOUND = {
+    # Nothing powered, one ambient: the field is uniform and every flow is round-off
+    # (1e-19 to 1e-11 W); the balance reported was +-1 (the relative error of round-off).
+    "unpowered uniform field": UNPOWERED_PLATE,
+    # Orthotropic kx = 1e15 passed the conditioning check that refused k = 1e15: exit 0
+    # with 15.7 W leaving for 0.5 W, energy balance reported 30.4 (now exit 2).
+    "orthotropic kx 1e15": board({"kx = 1.06": "kx = 1e15"}),
+}
+
+
+@pytest.mark.parametrize("text", FOUND.values(), ids=FOUND.keys())
+def test_models_found_by_the_properties_keep_the_contract(text):
+    assert_contract(text, "run")
+
+
+BUNDLED = sorted((ROOT / "models").glob("*.toml"))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("path", BUNDLED, ids=[p.stem for p in BUNDLED])
+@given(data=st.data())
+def test_mutated_bundled_models_keep_the_contract(path, data):
+    doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    for _ in range(data.draw(st.integers(1, 2))):
+        doc = data.draw(mutate(doc))
+    assert_contract(to_toml(doc), data.draw(st.sampled_from(["run", "check"])))
