@@ -28,7 +28,10 @@ ROOMS = {
     "pipeline": {"errors", "model", "fem", "post"},
     "sweep": {"errors", "version", "model", "fem", "post", "pipeline"},
     "verify": {"errors", "version", "model", "fem", "post", "pipeline"},
-    "cli": {"errors", "version", "model", "fem", "post", "pipeline", "sweep", "verify"},
+    "compare": {"errors", "version", "model", "fem", "post", "pipeline"},
+    "report": {"errors", "version", "model", "fem", "post", "pipeline", "sweep", "compare"},
+    "cli": {"errors", "version", "model", "fem", "post", "pipeline", "sweep", "verify",
+            "compare", "report"},
     "__main__": {"cli"},
 }
 """What each room may import: the pipeline's order (model text -> Model -> geometry ->
