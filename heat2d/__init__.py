@@ -1,14 +1,18 @@
 """heat2d: steady 2-D heat conduction for circuit-board cross-sections.
 
-The pipeline, one module per stage::
+The pipeline, one stage per module, a frozen dataclass between stages::
 
-    model text --load/parse--> Model --build_geometry--> Geometry --build_mesh--> Mesh
-      --assemble--> System --solver.solve--> Solution --compute_results--> Result
-      --writers.write--> files
+    model text --model.load/parse--> Model --fem.geometry.build_geometry--> Geometry
+      --fem.mesh.build_mesh--> Mesh --fem.assembly.assemble--> System
+      --fem.solver.solve--> Solution --post.results.compute_results--> Result
+      --post.writers.write--> files
 
-:func:`solve` (also called :func:`run`) chains the stages; the command line is a thin
-layer over it. The solver stack (scipy, shapely, triangle) loads on first use, so
-``import heat2d`` and the command line's ``--help`` stay fast.
+The rooms: ``model`` (model text -> Model), ``fem`` (the finite-element core), ``post``
+(results, error estimate, map, writers), ``pipeline`` (chains the stages), ``sweep``
+(parameter studies), ``verify`` (verification cases as data), ``cli`` (the command line,
+the only place that prints). :func:`solve` (also called :func:`run`) chains the stages.
+The solver stack (scipy, shapely, triangle) loads on first use, so ``import heat2d`` and
+the command line's ``--help`` stay fast.
 """
 
 from __future__ import annotations
