@@ -13,7 +13,7 @@ import heat2d
 from heat2d import cli
 from heat2d.errors import ModelError
 from heat2d.fem.geometry import build_geometry
-from heat2d.fem.mesh import estimate_nodes
+from heat2d.fem.budget import estimate_nodes
 from heat2d.model.expr import ExpressionError, evaluate
 from tests.common import board
 

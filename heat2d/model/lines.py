@@ -29,15 +29,21 @@ class LineIndex:
             self.blocks.append((name, ordinal, start, end))
         first = starts[0][2] if starts else len(self.lines)
         self.blocks.append(("", 0, -1, first))
+        # One look-up per message, not a scan of every block (models with thousands of
+        # shapes ask for thousands of lines).
+        self._where: dict[tuple[str, int], tuple[int, int]] = {}
+        for name, o, start, end in self.blocks:
+            self._where.setdefault((name, o), (start, end))
 
     def find(self, table: str, ordinal: int = 0, key: str | None = None) -> int | None:
-        for name, o, start, end in self.blocks:
-            if name == table and o == ordinal:
-                if key is None:
-                    return start + 1 if start >= 0 else None
-                pat = re.compile(rf"^\s*\"?{re.escape(key)}\"?\s*=")
-                for i in range(max(start, 0), end):
-                    if pat.match(self.lines[i]):
-                        return i + 1
-                return start + 1 if start >= 0 else None
-        return None
+        where = self._where.get((table, ordinal))
+        if where is None:
+            return None
+        start, end = where
+        if key is None:
+            return start + 1 if start >= 0 else None
+        pat = re.compile(rf"^\s*\"?{re.escape(key)}\"?\s*=")
+        for i in range(max(start, 0), end):
+            if pat.match(self.lines[i]):
+                return i + 1
+        return start + 1 if start >= 0 else None

@@ -15,8 +15,9 @@ from dataclasses import replace
 import numpy as np
 
 from ..fem.assembly import assemble
+from ..fem.budget import check_outlines
 from ..fem.geometry import build_geometry
-from ..fem.mesh import build_mesh, check_outlines
+from ..fem.mesh import build_mesh
 from ..fem.solver import solve
 from ..model import Model
 from ..post.results import Result, brief_figures, compute_results
