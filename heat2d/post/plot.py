@@ -1,4 +1,12 @@
-"""The temperature map written as ``<stem>.png``."""
+"""The temperature map written as ``<stem>.png``, and the hot-spot view alone.
+
+Layout: the whole model (stretched by a round factor through a thin model's thickness,
+and said so in its title) and, when the hot shape is small in it, a panel at true scale
+around the hot spot with its own colour scale. Flat models stack the panels, tall or
+square ones put them side by side. Each panel has its colour bar; one legend below names
+the boundaries, interfaces, the hot spot and the zoomed window. The figure is sized from
+the panels' aspects, so there is no empty margin.
+"""
 
 from __future__ import annotations
 
@@ -7,182 +15,248 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from . import mapview
+from .mapview import Panel
+
 if TYPE_CHECKING:                 # annotations only: results imports this module
     from .results import Result
 
-LEVELS = 24
-ZOOM_FRACTION = 0.3
-"""Add a panel zoomed on the hot shape when its window is smaller than this fraction of
-the model's width."""
-ZOOM_ASPECT = 3.0
-"""Width over height of the zoomed window."""
+DPI = 110
+LEFT, RIGHT = 0.78, 1.12
+"""Inches left of each panel (y ticks and label) and right of it (its colour bar)."""
+STACK_WIDTH = 8.2
+"""Inches of panel width when the panels are stacked."""
+ROW_HEIGHT = 5.4
+"""Inches of panel height when the panels stand side by side."""
+SIDE_BY_SIDE = 0.8
+"""Whole-model panels taller than this (height over width, as drawn) stand beside the
+zoomed panel; flatter ones are stacked above it."""
 
 
 def plot_temperature(result: Result, path: str | Path | None = None, *, fig=None,
-                     show_mesh: bool = False):
+                     show_mesh: bool = False, scale: tuple[float, float] | None = None):
     """Draw the temperature map; save it to ``path`` if given and return the figure.
 
-    Filled contours with isotherm lines, shape outlines, the hot spot marked and
-    labelled, colour bar in °C, axes in the model's length unit, equal aspect.
-    A flat model (a board slice) gets a second panel zoomed on the hot spot;
-    ``show_mesh`` draws the triangles too.
+    Parameters
+    ----------
+    result
+        A solved model.
+    path
+        Where to write the PNG; nothing is written when None.
+    fig
+        A matplotlib figure to draw into (resized to the layout); a new one when None.
+    show_mesh
+        Draw the triangles too.
+    scale
+        (low, high) °C of the colour scale, shared by the panels (to compare runs);
+        default each panel's own range. Values beyond it get an arrow at that end.
     """
-    import matplotlib.tri as mtri
-    from matplotlib.figure import Figure
+    whole = mapview.whole_panel(result)
+    side = whole.aspect > SIDE_BY_SIDE
+    width = ROW_HEIGHT / whole.aspect if side else STACK_WIDTH
+    zoom = mapview.zoom_panel(result, whole, width,
+                              aspects=(0.8, 1.5) if side else (0.22, 0.7))
+    panels = [whole] if zoom is None else [whole, zoom]
+    return _draw(result, panels, path, fig=fig, side=side, show_mesh=show_mesh, scale=scale)
 
-    mesh, model, summary = result.mesh, result.model, result.summary
-    T = result.temperature
-    x0, y0 = mesh.points.min(axis=0)
-    x1, y1 = mesh.points.max(axis=0)
-    aspect = (y1 - y0) / max(x1 - x0, 1e-300)
+
+def plot_zoom(result: Result, path: str | Path | None = None, *, fig=None,
+              show_mesh: bool = False, scale: tuple[float, float] | None = None):
+    """Draw the true-scale view around the hot spot alone (for a report); save it to
+    ``path`` if given and return the figure. Options as for :func:`plot_temperature`.
+
+    The window is the one :func:`plot_temperature` zooms on, drawn even where the map
+    itself does not need it.
+    """
+    whole = mapview.whole_panel(result)
+    zoom = mapview.zoom_panel(result, whole, STACK_WIDTH, aspects=(0.45, 1.0), force=True)
+    return _draw(result, [zoom], path, fig=fig, side=False, show_mesh=show_mesh,
+                 scale=scale, title=False)
+
+
+def _draw(result: Result, panels: list[Panel], path, *, fig, side: bool, show_mesh: bool,
+          scale, title: bool = True):
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Rectangle
+
+    summary, model = result.summary, result.model
     hs = summary["hot_spot"]
-    window = _zoom_window(result, hs["shape"])
-    zoom = window[1] - window[0] < ZOOM_FRACTION * (x1 - x0)
-    width = 11.0
-    full_h = float(np.clip(width * 0.8 * aspect, 0.6, 7.5))
-    zoom_h = width * 0.8 / ZOOM_ASPECT if zoom else 0.0
-    if fig is None:
-        # Fixed margins (in inches) instead of a layout engine, which would draw the
-        # figure twice.
-        height = full_h + zoom_h + 1.6 + (0.9 if zoom else 0.0)
-        fig = Figure(figsize=(width, height))
-        fig.subplots_adjust(left=0.8 / width, right=1 - 1.1 / width, bottom=0.75 / height,
-                            top=1 - 0.75 / height, hspace=0.9 / max(full_h + zoom_h, 1.0) * 2)
-    axes = fig.subplots(2 if zoom else 1, 1, squeeze=False,
-                        height_ratios=[full_h, zoom_h] if zoom else None)[:, 0]
-    triangulations = [mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.triangles)]
     unit = model.length_unit
-    ranges = [(float(T.min()), float(T.max()))]
-    if zoom:
-        # The zoomed panel gets its own colour scale, so the detail near the hot spot shows.
-        wx0, wx1, wy0, wy1 = window
-        p = mesh.points
-        near = (p[:, 0] >= wx0) & (p[:, 0] <= wx1) & (p[:, 1] >= wy0) & (p[:, 1] <= wy1)
-        ranges.append((float(T[near].min()), float(T[near].max())))
-        # The zoomed panel contours only the triangles that reach into its window.
-        keep = _overlaps(mesh, window)
-        triangulations.append(mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1],
-                                                 mesh.triangles[keep]))
-    for k, ax in enumerate(axes):
-        tri = triangulations[k]
-        lo, hi = ranges[k]
-        uniform = _uniform(lo, hi)
-        if uniform:
-            # One band half a kelvin either side of the single value: contour levels
-            # closer than round-off are refused by matplotlib.
-            mid = 0.5 * (lo + hi)
-            levels = np.array([mid - 0.5, mid + 0.5])
-        else:
-            levels = np.linspace(lo, hi, LEVELS + 1)
-        if len(tri.triangles) > RASTER_ABOVE and not show_mesh:
-            # Large meshes: contour a pixel grid sampled from the linear field (exact at
-            # the picture's resolution, several times faster than contouring every triangle).
-            gx, gy, grid = _raster(mesh.points, tri.triangles, T, ax_extent(k, window, mesh))
-            contour, contour_lines = ax.contourf, ax.contour
-            args = (gx, gy, grid)
-        else:
-            contour, contour_lines = ax.tricontourf, ax.tricontour
-            args = (tri, T)
-        filled = contour(*args, levels=levels, cmap="inferno", extend="both")
-        fmt = _label_format(lo, hi)
-        bar = fig.colorbar(filled, ax=ax, shrink=0.95, format=fmt, pad=0.01,
-                           ticks=[mid] if uniform else None)
-        bar.set_label("temperature (°C)" + (" (uniform)" if uniform else ""))
-        if not uniform:             # a uniform field has no isotherms
-            lines = contour_lines(*args, levels=levels[::4], colors="k", linewidths=0.4,
-                                  alpha=0.6)
-            ax.clabel(lines, fmt=fmt, fontsize=7, inline=True)
-        if show_mesh:
-            ax.triplot(tri, color="white", lw=0.15, alpha=0.5)
-        _outlines(ax, result)
-        ax.plot(hs["x"], hs["y"], marker="x", color="cyan", markersize=9, mew=2)
-        if k == len(axes) - 1:
-            upper = hs["y"] > 0.5 * (y0 + y1)
-            right = hs["x"] > 0.5 * (x0 + x1) if not zoom else False
-            err = hs.get("temperature_error")
-            pm = f" ± {err:.2g}" if err is not None else ""
-            ax.annotate(f"hot spot {hs['temperature']:.1f}{pm} °C ({hs['shape']})",
-                        (hs["x"], hs["y"]), xytext=(-10 if right else 10, -12 if upper else 12),
-                        textcoords="offset points", color="white", fontsize=9,
-                        ha="right" if right else "left", va="top" if upper else "bottom",
-                        bbox={"boxstyle": "round", "fc": "black", "alpha": 0.6, "lw": 0})
-        ax.set_aspect("equal")
+    title_lines = _title(result) if title else []
+    if fig is None:
+        fig = Figure()
+    axes = [fig.add_axes((0, 0, 1, 1)) for _ in panels]
+    bars = [fig.add_axes((0, 0, 1, 1), label="<colorbar>") for _ in panels]
+    handles = []
+    for ax, panel in zip(axes, panels, strict=True):
+        x0, x1, y0, y1 = panel.limits()
+        ax.set_xlim(x0, x1)
+        ax.set_ylim(y0, y1)
+        ax.set_aspect(panel.sy / panel.sx, adjustable="box")
+        edge_handles = mapview.draw_edges(ax, result)
+        handles = handles or edge_handles
         ax.set_xlabel(f"r ({unit})" if model.axisymmetric else f"x ({unit})")
         ax.set_ylabel(f"z ({unit})" if model.axisymmetric else f"y ({unit})")
-    if zoom:
-        axes[1].set_xlim(wx0, wx1)
-        axes[1].set_ylim(wy0, wy1)
-        axes[1].set_title("around the hot spot", fontsize=9)
-        from matplotlib.patches import Rectangle
-
-        axes[0].add_patch(Rectangle((wx0, wy0), wx1 - wx0, wy1 - wy0, fill=False,
-                                    ec="cyan", lw=1.0, ls="--"))
-    title = model.title or model.stem
-    extent = ("full revolution" if model.axisymmetric else f"{model.depth:g} {unit} depth")
-    lines = [f"{title}: max {hs['temperature']:.1f} °C, "
-             f"{summary['energy_balance']['power_in_w']:.3g} W over {extent}"]
-    limits = []
-    for name, lim in summary.get("limits", {}).items():
-        state = (f"EXCEEDED by {-lim['margin']:.1f} K" if lim["exceeded"]
-                 else f"margin {lim['margin']:.1f} K")
-        limits.append(f"{name} {lim['max']:.1f} °C vs limit {lim['limit']:g} °C ({state})")
-    shown = sorted(summary.get("limits", {}).items(), key=lambda kv: kv[1]["margin"])
-    if limits:
-        # The tightest three, one per line.
-        order = [list(summary["limits"]).index(name) for name, _ in shown[:3]]
-        lines += [limits[i] for i in order]
-        if len(limits) > 3:
-            lines.append(f"(+{len(limits) - 3} more limits in summary.txt)")
-    axes[0].set_title("\n".join(lines), fontsize=10,
-                      color="firebrick" if any(v["exceeded"] for v in summary["limits"].values())
-                      else "black")
-    fig.text(0.01, 0.002, "Estimate only: confirm against measurements and component ratings.",
+        ax.set_title(panel.title(result), fontsize=9)
+        ax.set_facecolor("white")
+    # Sizes in inches, from the panels' drawn aspects.
+    if side:
+        sizes = [(ROW_HEIGHT / p.aspect, ROW_HEIGHT) for p in panels]
+        fig_w = sum(LEFT + w + RIGHT for w, _ in sizes)
+    else:
+        sizes = [(STACK_WIDTH, STACK_WIDTH * p.aspect) for p in panels]
+        fig_w = LEFT + STACK_WIDTH + RIGHT
+    extra = [Line2D([], [], ls="none", marker="o", ms=8, mfc="none", mec="white", mew=1.6,
+                    path_effects=[_ring_stroke()],
+                    label=_hot_label(result))]
+    if len(panels) == 2:
+        extra.append(Line2D([], [], color="white", ls=(0, (3, 2)), lw=1.2,
+                            path_effects=[_ring_stroke(2.6)], label="window of the zoomed panel"))
+    entries = handles + extra
+    ncol = max(1, min(len(entries), int(fig_w // 4.2)))
+    legend_h = 0.12 + 0.2 * -(-len(entries) // ncol)
+    head = 0.12 + 0.19 * len(title_lines)
+    caption = 0.2
+    panel_titles = [0.26 if p.title(result) else 0.08 for p in panels]
+    below = 0.5                        # x tick labels and x label
+    if side:
+        fig_h = head + max(panel_titles) + ROW_HEIGHT + below + legend_h + caption
+    else:
+        fig_h = head + sum(t + h + below for t, (_, h) in zip(panel_titles, sizes, strict=True)) \
+            + legend_h + caption
+    fig.set_size_inches(fig_w, fig_h)
+    fig.set_dpi(DPI)
+    renderer = _renderer(fig)
+    left, top = 0.0, fig_h - head
+    for k, (ax, cax) in enumerate(zip(axes, bars, strict=True)):
+        w, h = sizes[k]
+        if side:
+            x, y = left + LEFT, top - max(panel_titles) - h
+            left += LEFT + w + RIGHT
+        else:
+            x, y = LEFT, top - panel_titles[k] - h
+            top = y - below
+        ax.set_position((x / fig_w, y / fig_h, w / fig_w, h / fig_h))
+        cax.set_position(((x + w + 0.12) / fig_w, y / fig_h, 0.16 / fig_w, h / fig_h))
+        ax.apply_aspect()
+    for k, (ax, cax, panel) in enumerate(zip(axes, bars, panels, strict=True)):
+        w, h = sizes[k]
+        _field(result, ax, cax, panel, fig, show_mesh=show_mesh, scale=scale,
+               pixels=(int(w * DPI), int(h * DPI)))
+        marker = ax.plot([hs["x"]], [hs["y"]], ls="none", marker="o", ms=8, mfc="none",
+                         mec="white", mew=1.6, zorder=6, gid="hot-spot",
+                         path_effects=[_ring_stroke()])[0]
+        if panel.zoom is False and len(panels) == 2:
+            zx0, zx1, zy0, zy1 = panels[1].extent
+            ax.add_patch(Rectangle((zx0, zy0), zx1 - zx0, zy1 - zy0, fill=False, ec="white",
+                                   ls=(0, (3, 2)), lw=1.2, zorder=5,
+                                   path_effects=[_ring_stroke(2.6)]))
+        avoid = [marker.get_window_extent(renderer).expanded(1.6, 1.6)]
+        mapview.name_shapes(ax, result, renderer, zoom=panel.zoom, avoid=avoid)
+    fig.legend(handles=entries, loc="lower left", ncol=ncol, fontsize=8, frameon=False,
+               bbox_to_anchor=(LEFT / fig_w, caption / fig_h), borderaxespad=0.1,
+               facecolor="0.6", handlelength=3.2)
+    if title_lines:
+        exceeded = any(v["exceeded"] for v in summary.get("limits", {}).values())
+        fig.text(LEFT / fig_w, 1 - 0.06 / fig_h, "\n".join(title_lines), fontsize=10,
+                 va="top", ha="left", color="firebrick" if exceeded else "black")
+    fig.text(0.01, 0.03 / fig_h, "Estimate only: confirm against measurements and component "
+             "ratings; safety standards, codes and qualified review take precedence.",
              fontsize=7, color="0.35", va="bottom")
     if path is not None:
-        fig.savefig(path, dpi=110)
+        fig.savefig(path, dpi=DPI)
     return fig
 
 
-UNIFORM_SPAN = 1e-6
-"""A panel whose temperature spread is below this fraction of max(1, |T|) °C is drawn
-as a uniform field: one colour and a colour bar with its single value."""
+def _field(result: Result, ax, cax, panel: Panel, fig, *, show_mesh: bool, scale, pixels):
+    """Filled bands, isotherms, colour bar and (optionally) the mesh of one panel."""
+    import matplotlib.tri as mtri
+
+    mesh, T = result.mesh, result.temperature
+    triangles = mesh.triangles
+    if panel.zoom:
+        triangles = triangles[mapview.overlaps(mesh, panel.limits())]
+    shown = T[np.unique(triangles)]
+    lo, hi = float(shown.min()), float(shown.max())
+    lv = mapview.levels(lo, hi, scale=scale)
+    tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], triangles)
+    if len(triangles) > RASTER_ABOVE and not show_mesh:
+        # Large meshes: contour a pixel grid sampled from the linear field (exact at the
+        # picture's resolution, several times faster than contouring every triangle).
+        nx, ny = max(pixels[0], 50), max(pixels[1], 50)
+        args = raster(mesh.points, triangles, T, panel.limits(), nx, ny)
+        fill, lines = ax.contourf, ax.contour
+    else:
+        args, fill, lines = (tri, T), ax.tricontourf, ax.tricontour
+    filled = fill(*args, levels=lv.fill, cmap="inferno", extend=lv.extend, zorder=1)
+    bar = fig.colorbar(filled, cax=cax, format=lv.fmt, ticks=lv.ticks, extend=lv.extend)
+    bar.set_label("temperature (°C)" + (" (uniform)" if lv.uniform else ""))
+    if len(lv.lines):               # a uniform field has no isotherms
+        iso = lines(*args, levels=lv.lines, colors="k", linewidths=0.5, alpha=0.7, zorder=2)
+        ax.clabel(iso, fmt=lv.fmt, fontsize=7, inline=True)
+        bar.add_lines(iso)
+    if show_mesh:
+        ax.triplot(tri, color="white", lw=0.15, alpha=0.5, zorder=3)
 
 
-def _uniform(lo: float, hi: float) -> bool:
-    """Whether the range [lo, hi] is one value to round-off (an unpowered model)."""
-    return hi - lo <= UNIFORM_SPAN * max(1.0, abs(lo), abs(hi))
+def _ring_stroke(width: float = 3.4):
+    """A dark outline under the white marks, so they read on light and dark colours."""
+    from matplotlib import patheffects
+
+    return patheffects.withStroke(linewidth=width, foreground="black")
 
 
-def _label_format(lo: float, hi: float) -> str:
-    """Colour-bar and isotherm labels with enough decimals that the ticks (about six
-    over the range) differ: one decimal for spreads of a few kelvin and more."""
-    if _uniform(lo, hi):
-        return "%.2f"
-    decimals = int(np.clip(np.ceil(-np.log10((hi - lo) / 6)), 1, 9))
-    return f"%.{decimals}f"
+def _hot_label(result: Result) -> str:
+    hs = result.summary["hot_spot"]
+    err = hs.get("temperature_error")
+    pm = f" ± {err:.1g}" if err is not None else ""
+    return (f"hot spot {hs['temperature']:.1f}{pm} °C in {hs['shape']} at "
+            f"({hs['x']:.3g}, {hs['y']:.3g}) {result.model.length_unit}")
+
+
+def _title(result: Result) -> list[str]:
+    """The title, the power and the tightest limits, one per line."""
+    model, summary = result.model, result.summary
+    hs = summary["hot_spot"]
+    unit = model.length_unit
+    extent = "full revolution" if model.axisymmetric else f"{model.depth:g} {unit} depth"
+    lines = [f"{model.title or model.stem}: max {hs['temperature']:.1f} °C, "
+             f"{summary['energy_balance']['power_in_w']:.3g} W over {extent}"]
+    limits = summary.get("limits", {})
+    shown = sorted(limits.items(), key=lambda kv: kv[1]["margin"])
+    for name, lim in shown[:3]:
+        state = (f"EXCEEDED by {-lim['margin']:.1f} K" if lim["exceeded"]
+                 else f"margin {lim['margin']:.1f} K")
+        lines.append(f"{name} {lim['max']:.1f} °C vs limit {lim['limit']:g} °C ({state})")
+    if len(limits) > 3:
+        lines[-1] += f" (+{len(limits) - 3} more limits in summary.txt)"
+    return lines
+
+
+def _renderer(fig):
+    """The figure's renderer (an Agg canvas is attached when it has none), to measure
+    text before placing it."""
+    canvas = fig.canvas
+    if not hasattr(canvas, "get_renderer"):
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+        canvas = FigureCanvasAgg(fig)
+    return canvas.get_renderer()
 
 
 RASTER_ABOVE = 100_000
 """Panels with more triangles are drawn from a pixel grid."""
-RASTER_PIXELS = 800
 
 
-def ax_extent(k: int, window, mesh) -> tuple[float, float, float, float]:
-    if k == 1:
-        return window
-    (x0, y0), (x1, y1) = mesh.points.min(axis=0), mesh.points.max(axis=0)
-    return (x0, x1, y0, y1)
-
-
-def _raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
-            extent: tuple[float, float, float, float]):
-    """The linear field sampled at pixel centres (masked outside the mesh).
+def raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
+           extent: tuple[float, float, float, float], nx: int, ny: int):
+    """The linear field sampled at the centres of an ``nx`` × ``ny`` pixel grid over
+    ``extent`` (masked outside the mesh).
 
     Vectorized over (triangle, pixel) candidates from each triangle's bounding box.
     """
     x0, x1, y0, y1 = extent
-    nx = RASTER_PIXELS
-    ny = int(np.clip(nx * (y1 - y0) / max(x1 - x0, 1e-300), 50, RASTER_PIXELS))
     dx, dy = (x1 - x0) / nx, (y1 - y0) / ny
     p = points[triangles]
     ix0 = np.clip(np.floor((p[:, :, 0].min(axis=1) - x0) / dx - 0.5).astype(int), 0, nx - 1)
@@ -212,37 +286,3 @@ def _raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
     grid[py[inside], px[inside]] = tv[0, t] + tv[1, t] * x + tv[2, t] * y
     gx, gy = np.meshgrid(x0 + (np.arange(nx) + 0.5) * dx, y0 + (np.arange(ny) + 0.5) * dy)
     return gx, gy, np.ma.masked_invalid(grid)
-
-
-def _overlaps(mesh, window: tuple[float, float, float, float]) -> np.ndarray:
-    """Triangles whose bounding box meets the window (large ones with no node inside)."""
-    wx0, wx1, wy0, wy1 = window
-    p = mesh.points[mesh.triangles]
-    lo, hi = p.min(axis=1), p.max(axis=1)
-    return (lo[:, 0] <= wx1) & (hi[:, 0] >= wx0) & (lo[:, 1] <= wy1) & (hi[:, 1] >= wy0)
-
-
-def _zoom_window(result: Result, shape: str) -> tuple[float, float, float, float]:
-    """A window of aspect ZOOM_ASPECT around the hot shape, three times its size."""
-    mesh = result.mesh
-    index = mesh.model.shape(shape).index
-    pts = mesh.points[np.unique(mesh.triangles[mesh.triangle_shape == index])]
-    (sx0, sy0), (sx1, sy1) = pts.min(axis=0), pts.max(axis=0)
-    w = max(3 * (sx1 - sx0), 3 * ZOOM_ASPECT * (sy1 - sy0))
-    h = w / ZOOM_ASPECT
-    cx, cy = 0.5 * (sx0 + sx1), 0.5 * (sy0 + sy1)
-    return cx - w / 2, cx + w / 2, cy - h / 2, cy + h / 2
-
-
-def _outlines(ax, result: Result) -> None:
-    """Draw the visible outline of every shape as thin white lines."""
-    import shapely
-
-    segments = []
-    for geom in result.mesh.geometry.visible:
-        for part in shapely.get_parts(shapely.boundary(geom)):
-            for ring in shapely.get_parts(part):
-                segments.append(shapely.get_coordinates(ring))
-    from matplotlib.collections import LineCollection
-
-    ax.add_collection(LineCollection(segments, colors="0.55", linewidths=0.8))
