@@ -18,7 +18,7 @@ from .lines import LineIndex
 
 _ALLOWED = {
     "": {"model", "params", "materials", "shape", "stack", "boundary", "interface", "mesh",
-         "probe"},
+         "probe", "cut"},
     "model": {"length_unit", "depth", "title", "axisymmetric"},
     "material": {"k", "kx", "ky", "note"},
     "shape": {"name", "material", "void", "rect", "polygon", "circle", "power",
@@ -33,6 +33,7 @@ _ALLOWED = {
                  "surroundings"},
     "mesh": {"size", "min_angle", "accuracy", "max_nodes", "node_limit"},
     "probe": {"name", "at", "accuracy"},
+    "cut": {"name", "through"},
 }
 
 
@@ -115,6 +116,9 @@ class BaseReader:
         if not isinstance(value, str) or not value.strip():
             raise self.fail(entry, f"{key}: expected a non-empty string, got {brief(value)}",
                             self.index.find(where[0], where[1], key))
+        if key == "name" and len(value.strip()) > ranges.MAX_NAME:
+            raise self.fail(entry[:60] + "...", f"name: at most {ranges.MAX_NAME} characters, "
+                            f"got {len(value.strip())}", self.index.find(where[0], where[1], key))
         return value.strip()
 
     def array_of_tables(self, data: dict[str, Any], key: str) -> list[dict[str, Any]]:

@@ -35,6 +35,11 @@ class ShapeReader(BaseReader):
             else:
                 new, group = self.read_stack(spec, i)
             shapes += new
+            if len(shapes) > ranges.MAX_SHAPES:
+                raise self.fail(f"[[{table}]] #{i + 1}", f"the model has more than "
+                                f"{ranges.MAX_SHAPES} shapes once repeats and stack layers "
+                                "are expanded; merge shapes or use a via field instead of "
+                                "many copies", self.index.find(table, i))
             if group:
                 groups.append(group)
         seen: dict[str, Shape | Group] = {}
@@ -133,6 +138,9 @@ class ShapeReader(BaseReader):
             if not isinstance(pts, list) or len(pts) < 3:
                 raise self.fail(entry, "polygon: expected a list of at least 3 [x, y] points",
                                 self.index.find(*where, "polygon"))
+            if isinstance(pts, list) and len(pts) > ranges.MAX_POLYGON_POINTS:
+                raise self.fail(entry, f"polygon: at most {ranges.MAX_POLYGON_POINTS} points, "
+                                f"got {len(pts)}", self.index.find(*where, "polygon"))
             points = tuple(self.point(p, entry, f"polygon[{j}]", where)
                            for j, p in enumerate(pts))
         else:

@@ -35,8 +35,16 @@ HEAT_FLUX = 1e10
 """Largest magnitude of an imposed heat flux, W/m²."""
 RESISTANCE = (1e-12, 1e3)
 """Contact resistance R″ in m²·K/W (thermal pads and greases 1e-6..1e-3)."""
-REPEAT_COUNT = 10_000
-"""Most copies of one repeated shape."""
+REPEAT_COUNT = 2000
+"""Most copies of one repeated shape (the whole model holds at most MAX_SHAPES)."""
+MAX_SHAPES = 2000
+"""Most shapes in a model once repeats and stack layers are expanded: the painting,
+statistics and map take about half a minute per thousand shapes on a laptop (measured:
+1000 repeated copies, 34 s), and a cross-section rarely needs more than a few hundred."""
+MAX_POLYGON_POINTS = 20_000
+"""Most points of one polygon: as many as the chords of the largest circle allowed."""
+MAX_NAME = 200
+"""Longest name of a shape, stack, layer, material, boundary, interface, probe or cut."""
 ACCURACY_K = 1e4
 """Largest requested accuracy, K (any positive value below is allowed)."""
 MAX_NODES = 1e9

@@ -23,6 +23,7 @@ from ..errors import ModelError
 from . import ranges
 from .base import brief
 from .boundaries import BoundaryReader
+from .cuts import CutReader
 from .expr import CONSTANTS, FUNCTIONS
 from .lines import LineIndex
 from .parts import ShapeReader
@@ -151,7 +152,7 @@ def from_dict(data: Mapping[str, Any], *, source: str = "<dict>",
     return _Reader(source, LineIndex("")).read(data, dict(params or {}), list(paint_order))
 
 
-class _Reader(ShapeReader, BoundaryReader):
+class _Reader(ShapeReader, BoundaryReader, CutReader):
     """Reads one model: the top-level sections here, shapes and boundaries from
     the mixed-in readers."""
 
@@ -195,12 +196,14 @@ class _Reader(ShapeReader, BoundaryReader):
         interfaces = self.read_interfaces(self.array_of_tables(data, "interface"), by_name,
                                           group_names)
         probes = self.read_probes(self.array_of_tables(data, "probe"))
+        cuts = self.read_cuts(self.array_of_tables(data, "cut"))
         mesh = self.read_mesh(data.get("mesh", {}))
         return Model(source=self.source, length_unit=unit, depth=depth, params=params,
                      materials=tuple(materials.values()), shapes=tuple(shapes),
                      boundaries=tuple(boundaries), probes=tuple(probes), mesh=mesh,
                      title=title, axisymmetric=axisymmetric, groups=tuple(groups),
-                     interfaces=tuple(interfaces), data=raw, overrides=dict(overrides),
+                     interfaces=tuple(interfaces), cuts=tuple(cuts), data=raw,
+                     overrides=dict(overrides),
                      paint_order=tuple(order))
 
     def check_radius(self, shapes: list[Shape]) -> None:
@@ -237,6 +240,10 @@ class _Reader(ShapeReader, BoundaryReader):
         out: dict[str, Material] = {}
         for name, spec in raw.items():
             where = (f"materials.{name}", 0)
+            if len(name) > ranges.MAX_NAME:
+                raise self.fail(f"material \"{name[:40]}...\"", f"name: at most "
+                                f"{ranges.MAX_NAME} characters, got {len(name)}",
+                                self.index.find(*where))
             entry = f"material \"{name}\""
             spec = self.table(spec, entry, name, ("materials", 0))
             self.check_keys(spec, "material", entry, where)

@@ -195,6 +195,23 @@ class Probe:
 
 
 @dataclass(frozen=True)
+class Cut:
+    """A named cut line through the body: a polyline of ``points`` (model units), open
+    (from outline to outline) or closed (last point equal to the first). The heat
+    reported for it crosses from the side left of the line, walking from the first point
+    to the last (inside a closed line), to the other side."""
+
+    name: str
+    index: int
+    points: tuple[tuple[float, float], ...]
+    line: int | None = None
+
+    @property
+    def closed(self) -> bool:
+        return len(self.points) > 3 and self.points[0] == self.points[-1]
+
+
+@dataclass(frozen=True)
 class MeshSettings:
     """Target edge length (model units; None = automatic), minimum angle (degrees), for
     adaptive refinement the accuracy wanted on the max temperature (K) and the node
@@ -228,6 +245,7 @@ class Model:
     axisymmetric: bool = False
     groups: tuple[Group, ...] = ()
     interfaces: tuple[Interface, ...] = ()
+    cuts: tuple[Cut, ...] = ()
     data: Mapping[str, Any] = field(default_factory=dict, compare=False, repr=False)
     overrides: Mapping[str, float | str] = field(default_factory=dict, compare=False,
                                                  repr=False)

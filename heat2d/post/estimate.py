@@ -298,6 +298,8 @@ def figures(summary: dict[str, Any]) -> dict[str, float]:
             out[f"shapes.{name}.mean"] = shape["mean"]
     for name, b in summary["boundaries"].items():
         out[f"boundaries.{name}.heat_out_w"] = b["heat_out_w"]
+    for name, cut in summary.get("cuts", {}).items():
+        out[f"cuts.{name}.heat_w"] = cut["heat_w"]
     return out
 
 
@@ -356,6 +358,8 @@ def annotate(summary: dict[str, Any], errors: dict[str, Any]) -> None:
             shape["mean_error"] = fig[f"shapes.{name}.mean"]["error"]
     for name, b in summary["boundaries"].items():
         b["heat_out_error_w"] = fig[f"boundaries.{name}.heat_out_w"]["error"]
+    for name, cut in summary.get("cuts", {}).items():
+        cut["heat_w_error"] = fig[f"cuts.{name}.heat_w"]["error"]
     shapes = summary["shapes"]
     for group in summary.get("groups", {}).values():
         seen = [shapes[m] for m in group["members"]

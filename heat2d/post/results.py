@@ -18,9 +18,16 @@ from ..fem.geometry import circle_sides
 from ..fem.sanity import check_finite
 from ..fem.solver import Solution
 from ..version import __version__
+from .cuts import cut_figures, cut_heat
+from .resistance import resistances as per_source
+from .resistance import shape_stats, share_reactions, surface_means
 
 REACTION_ROUNDOFF = 1e-6
 """Warn when the reactions' round-off bound exceeds this fraction of the balance scale."""
+IMPLAUSIBLE_C = 1500.0
+"""A field hotter than this (°C) is past the melting point of copper (1085 °C) and of
+every laminate, solder and silicon (1414 °C) (handbook values, from memory): a slip in a
+power or unit, not a result."""
 UNTRUSTED_BALANCE = 1e-3
 """An ill-conditioned system whose energy balance is open by more than this is refused as
 input: its heat flows are round-off, not results."""
@@ -174,11 +181,11 @@ def probe_weights(mesh, x: float, y: float) -> tuple[int, np.ndarray]:
 
 def brief_figures(solution: Solution) -> dict[str, Any]:
     """Only what :func:`heat2d.post.estimate.figures` reads: max temperature, probes, shape
-    max and mean, boundary heat (for the check solve of the error estimate)."""
+    max and mean, boundary and cut heat (for the check solve of the error estimate)."""
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature
-    stats = _shape_stats(mesh, T[mesh.triangles], system.layout.source,
-                         np.zeros(len(mesh.triangles)))
+    stats = shape_stats(mesh, T[mesh.triangles], system.layout.source,
+                        np.zeros(len(mesh.triangles)))
     boundaries, _, _ = _boundary_heat(solution)
     probes = {}
     for probe in model.probes:
@@ -186,7 +193,8 @@ def brief_figures(solution: Solution) -> dict[str, Any]:
         probes[probe.name] = float(bary @ T[mesh.triangles[k]])
     return {"temperature": {"max": float(T.max())}, "probes": probes,
             "shapes": {sh.name: stats[i] for i, sh in enumerate(model.shapes) if not sh.void},
-            "boundaries": boundaries}
+            "boundaries": boundaries, "cuts": {n: {"heat_w": q}
+                                               for n, q in cut_heat(solution).items()}}
 
 
 def compute_results(solution: Solution, *, timings: dict[str, float] | None = None,
@@ -200,7 +208,8 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
     timings
         Stage timings to record, seconds.
     resistances
-        Compute the °C/W matrix of the powered shapes (one solve per source).
+        Compute the °C/W matrix and the package figures of the powered shapes (one
+        solve per source, :mod:`.resistance`). Heat across cut lines: :mod:`.cuts`.
     """
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature
@@ -212,7 +221,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
 
     volume = system.layout.volume
     t_tri = T[tri]
-    stats = _shape_stats(mesh, t_tri, system.layout.source, system.qdot * volume)
+    stats = shape_stats(mesh, t_tri, system.layout.source, system.qdot * volume)
 
     # Hot spot: hottest node; its shape is that of the hottest triangle around it.
     node = int(np.argmax(T))
@@ -238,6 +247,10 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                          f"balance open by {balance['relative_error']:.1e}, so no heat flow "
                          "can be trusted; use a conductivity within a few decades of the "
                          "others", file=model.source, entry=f'material "{name}"')
+    if T.max() > IMPLAUSIBLE_C:
+        warnings.append(f"the model reaches {T.max():.4g} °C, past the melting point of "
+                        "every board and package material: check the powers, power "
+                        "densities and units")
     if abs(balance["relative_error"]) > REACTION_ROUNDOFF:
         warnings.append(f"energy balance closes only to {balance['relative_error']:.1e} "
                         f"(heat out {balance['heat_out_w']:.6g} W, power in "
@@ -249,6 +262,16 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
         if lim["exceeded"]:
             warnings.append(f"shape \"{name}\" reaches {lim['max']:.1f} °C, above its limit "
                             f"{lim['limit']:g} °C")
+    matrix, package = per_source(solution) if resistances else (None, {})
+    if package:
+        # Superposition: each boundary's heat = Σ_s P_s·share_s,b (the powered shapes'
+        # part) + the flow its boundary values alone drive through the body (from a hotter
+        # boundary to a colder one); exact for a linear model, a remainder otherwise.
+        for name, b in boundaries.items():
+            b["heat_from_powered_shapes_w"] = sum(p["to"][name]["heat_w"]
+                                                  for p in package.values())
+            b["heat_driven_by_boundary_values_w"] = (b["heat_out_w"]
+                                                     - b["heat_from_powered_shapes_w"])
     depth_text = ("full revolution (axisymmetric)" if model.axisymmetric
                   else f"depth {model.depth:g} {model.length_unit}")
     summary: dict[str, Any] = {
@@ -269,6 +292,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                    for g in model.groups},
         "boundaries": boundaries,
         "interfaces": _interfaces(solution),
+        "cuts": cut_figures(solution),
         "insulated_length": insulated,
         "axis_length": mesh.axis_length if model.axisymmetric else None,
         "energy_balance": balance,
@@ -280,7 +304,8 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                    "relative_residual": solution.residual, "nonlinear": system.nonlinear,
                    "history": [{"iteration": i, "max_change_k": c, "relative_residual": r}
                                for i, c, r in solution.history]},
-        "thermal_resistance": _resistances(solution) if resistances else None,
+        "thermal_resistance": matrix,
+        "package": package,
         "ids": {"shape": [sh.name for sh in model.shapes],
                 "material": [m.name for m in model.materials]},
         "timings_s": dict(timings or {}),
@@ -290,36 +315,6 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
     check_finite({"summary": summary, "heat_flux": float(np.abs(flux).max(initial=0.0))},
                  model.source)
     return Result(solution=solution, heat_flux=flux, summary=summary)
-
-
-def _shape_stats(mesh, t_tri: np.ndarray, source: np.ndarray, power: np.ndarray
-                 ) -> list[dict[str, Any]]:
-    """Per shape: min, volume-weighted mean, max, power, area.
-
-    The mean is exact for linear elements: ∫ T dV = Σ_i T_i ∫ φ_i dV (``source`` holds
-    ∫ φ_i dV, which carries the 2πr weight of an axisymmetric model).
-    """
-    volume = source.sum(axis=1)
-    ns = len(mesh.model.shapes)
-    shape = mesh.triangle_shape
-    s_min = np.full(ns, np.inf)
-    s_max = np.full(ns, -np.inf)
-    np.minimum.at(s_min, shape, t_tri.min(axis=1))
-    np.maximum.at(s_max, shape, t_tri.max(axis=1))
-    s_vol = np.bincount(shape, volume, minlength=ns)
-    s_int = np.bincount(shape, (source * t_tri).sum(axis=1), minlength=ns)
-    s_power = np.bincount(shape, power, minlength=ns)
-    s_area = np.bincount(shape, mesh.areas, minlength=ns)
-    out = []
-    for i in range(ns):
-        if s_vol[i] > 0:
-            out.append({"min": float(s_min[i]), "mean": float(s_int[i] / s_vol[i]),
-                        "max": float(s_max[i]), "power_w": float(s_power[i]),
-                        "area": float(s_area[i]), "volume_m3": float(s_vol[i])})
-        else:
-            out.append({"min": None, "mean": None, "max": None, "power_w": 0.0, "area": 0.0,
-                        "volume_m3": 0.0})
-    return out
 
 
 def _group_stats(members: list[dict[str, Any]]) -> dict[str, Any]:
@@ -367,31 +362,33 @@ def _interfaces(solution: Solution) -> dict[str, dict[str, Any]]:
 def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float], float]:
     system, mesh, model = solution.system, solution.mesh, solution.model
     T = solution.temperature
-    edges, owner = mesh.edges, mesh.edge_boundary
+    owner = mesh.edge_boundary
     nb = len(model.boundaries)
     out = system.edge_heat_out(T)
     is_fixed = ~np.isnan(system.edge["temperature"])
     # Fixed temperatures: the residual R = K T − F is the heat the reservoir puts in at
     # each fixed node; it is shared among the fixed edges at that node by their weights.
     heat = np.zeros(nb + 1)
-    _share_reactions(heat, system.residual(T), mesh, is_fixed, system.layout.edge_load)
+    share_reactions(heat, system.residual(T), mesh, is_fixed, system.layout.edge_load)
     rest = ~is_fixed & (owner >= 0)
     heat[:nb] += np.bincount(owner[rest], out[rest], minlength=nb + 1)[:nb]
 
     lengths = mesh.edge_lengths
     claimed = owner >= 0
     length = np.bincount(owner[claimed], lengths[claimed], minlength=nb)
-    # Surface-weighted mean temperature: ∫ T dS / ∫ dS, exact for linear T (2πr included).
-    load = system.layout.edge_load
-    surface = np.bincount(owner[claimed], load.sum(axis=1)[claimed], minlength=nb)
-    t_int = np.bincount(owner[claimed], (load * T[edges]).sum(axis=1)[claimed], minlength=nb)
+    mean_t = surface_means(mesh, system.layout, T)
+    # Share of all heat out: of the sum of the boundary flows that leave the body (a
+    # boundary that takes heat in has a negative share); the leaving shares add up to 1.
+    leaving = float(np.clip(heat[:nb], 0.0, None).sum())
     boundaries = {}
     for bc in model.boundaries:
         i = bc.index
         boundaries[bc.name] = {"kind": bc.label, "on": str(bc.selector),
                                "heat_out_w": float(heat[i]),
-                               "mean_temperature": float(t_int[i] / surface[i]),
-                               "length": float(length[i])}
+                               "mean_temperature": float(mean_t[i]),
+                               "length": float(length[i]),
+                               "share_of_heat_out": (float(heat[i]) / leaving if leaving > 0
+                                                     else None)}
     generated = system.qdot_power()
     flux_in = float((system.edge["flux"] * system.layout.edge_load.sum(axis=1)).sum())
     heat_out = float(heat[:nb].sum()) + flux_in       # leaving by convection, radiation, fixed
@@ -428,67 +425,3 @@ def _boundary_heat(solution: Solution) -> tuple[dict[str, Any], dict[str, float]
             f"figures may carry round-off of {roundoff:.1e} W")
     insulated = float(lengths[owner < 0].sum())
     return boundaries, balance, insulated
-
-
-def _share_reactions(heat: np.ndarray, reaction: np.ndarray, mesh, is_fixed: np.ndarray,
-                     edge_load: np.ndarray) -> None:
-    """Add −R at fixed nodes to the boundaries whose fixed edges meet there."""
-    fe = mesh.edges[is_fixed].ravel()
-    w = edge_load[is_fixed].ravel()
-    total = np.bincount(fe, w, minlength=len(reaction))
-    np.add.at(heat, np.repeat(mesh.edge_boundary[is_fixed], 2),
-              -reaction[fe] * np.where(total[fe] > 0, w / np.where(total[fe] > 0, total[fe], 1),
-                                       0.5))
-
-
-def _resistances(solution: Solution) -> dict[str, Any] | None:
-    """Temperature rise per watt of each powered (or limited) shape for each source.
-
-    Unit-power solutions with homogeneous boundary values, one solve each with the
-    factorization already made; for nonlinear models the tangent system at the solved
-    state (small-signal resistances).
-    """
-    system, mesh, model = solution.system, solution.mesh, solution.model
-    if solution.factor is None:
-        return None
-    volume = system.layout.volume
-    power = np.bincount(mesh.triangle_shape, system.qdot * volume, minlength=len(model.shapes))
-    sources = [sh for sh in model.shapes if power[sh.index] > 0]
-    if not sources:
-        return None
-    rows = [sh for sh in model.shapes if not sh.void and (power[sh.index] > 0
-                                                          or sh.max_temperature is not None)]
-    free = solution.free
-    n = len(mesh.points)
-    T = solution.temperature
-    if system.nonlinear:
-        _, J = system.residual_and_jacobian(T)
-    else:
-        J = system.K
-    node_h = system.node_h(T)
-    tri = mesh.triangles
-    is_fixed = ~np.isnan(system.edge["temperature"])
-    mean_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
-    max_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
-    share: dict[str, dict[str, float]] = {}
-    for src in sources:
-        q = np.where(mesh.triangle_shape == src.index, system.qdot / power[src.index], 0.0)
-        f = np.bincount(tri.ravel(), (q[:, None] * system.layout.source).ravel(), minlength=n)
-        theta = np.zeros(n)
-        theta[free] = solution.factor(f[free])
-        t_tri = theta[tri]
-        stats = _shape_stats(mesh, t_tri, system.layout.source, np.zeros(len(tri)))
-        for r in rows:
-            mean_rise[r.name][src.name] = stats[r.index]["mean"]
-            max_rise[r.name][src.name] = stats[r.index]["max"]
-        heat = np.zeros(len(model.boundaries) + 1)
-        _share_reactions(heat, J @ theta - f, mesh, is_fixed, system.layout.edge_load)
-        e = mesh.edges
-        out = (system.layout.edge_mass.sum(axis=1) * node_h * theta[e]).sum(axis=1)
-        rest = ~is_fixed & (mesh.edge_boundary >= 0)
-        heat += np.bincount(mesh.edge_boundary[rest], out[rest], minlength=len(heat))
-        share[src.name] = {bc.name: float(heat[bc.index]) for bc in model.boundaries}
-    return {"sources": [s.name for s in sources],
-            "basis": "tangent at the solved state" if system.nonlinear else "linear",
-            "mean_rise_k_per_w": mean_rise, "max_rise_k_per_w": max_rise,
-            "heat_share": share}
