@@ -35,8 +35,16 @@ from .runners import (
     _Task,
     _worker_forget,
 )
-from .store import VARIANT_FORMATS, _clear_stale, _replace_text, _store, _stored_row, input_digest
-from .table import CSV_NAME, PLOT_NAME, _columns, _csv_text, _row, plot_sweep
+from .store import (
+    VARIANT_FORMATS,
+    _clear_stale,
+    _replace_text,
+    _store,
+    _stored_row,
+    adopt_legacy,
+    input_digest,
+)
+from .table import CSV_NAME, PLOT_NAME, _columns, _csv_text, _row, param_units, plot_sweep
 
 zip_ = zip
 """The builtin, for functions whose ``zip`` option shadows it."""
@@ -73,6 +81,12 @@ class SweepResult:
         The output folder, or None when nothing was written.
     tracebacks
         Tracebacks of variants that failed inside heat2d, by variant name.
+    units
+        The unit of each param that can be told from the keys it feeds
+        (:func:`heat2d.sweep.table.param_units`); the plot labels its axes with them.
+    limits
+        Each variant's temperature limits (``max_temperature``, °C) by shape, from its
+        model; the plot draws them.
     """
 
     rows: list[dict[str, Any]]
@@ -83,6 +97,8 @@ class SweepResult:
     title: str = ""
     zipped: bool = False
     tracebacks: dict[str, str] = field(default_factory=dict)
+    units: dict[str, str] = field(default_factory=dict)
+    limits: dict[str, dict[str, float]] = field(default_factory=dict)
 
     @property
     def failed(self) -> list[dict[str, Any]]:
@@ -94,9 +110,11 @@ class SweepResult:
         return [r.get(name) for r in self.rows]
 
     def write_csv(self, path: str | Path) -> Path:
-        """Write the table as CSV (numbers in full precision, empty cells for missing)."""
+        """Write the table as CSV: each number to the digits it carries (temperatures and
+        margins to 0.001 K, heat flows to 6 significant digits, errors to 2, times to
+        0.01 s, params as given; see :mod:`heat2d.sweep.table`), empty cells for missing."""
         path = Path(path)
-        _replace_text(path, _csv_text(self.columns, self.rows))
+        _replace_text(path, _csv_text(self.columns, self.rows, varied=self.varied))
         return path
 
     def plot(self, path: str | Path | None = None, *, fig=None):
@@ -209,11 +227,19 @@ def _sweep(model: Model, vary: dict[str, list], variants: list[_Variant], *, pai
             continue
         v.digest = input_digest(v.model, refine=refine, method=method, formats=formats,
                                 estimate=estimate)
+    if all(v.model is None for v in variants):
+        # No value makes a valid model: bad input, refused before anything is written.
+        raise ModelError(f"no variant is a valid model; the first, {variants[0].name}: "
+                         f"{variants[0].error}", entry="--vary")
 
     total = len(variants)
     rows: list[dict[str, Any] | None] = [None] * total
     result = SweepResult(rows=[], columns=[], varied=list(vary), out=out,
-                         title=model.title or model.stem, zipped=paired)
+                         title=model.title or model.stem, zipped=paired,
+                         units={n: u for n, u in param_units(model).items() if n in vary},
+                         limits={v.name: {s.name: s.max_temperature for s in v.model.shapes
+                                          if s.max_temperature is not None}
+                                 for v in variants if v.model is not None})
     counts = {"done": 0, "failed": 0}
 
     def record(v: _Variant, row: dict[str, Any], skipped: bool = False) -> None:
@@ -237,6 +263,8 @@ def _sweep(model: Model, vary: dict[str, list], variants: list[_Variant], *, pai
         if v.model is None:
             record(v, _row(v, {"index": v.index, "status": "failed", "error": v.error}))
             continue
+        if out is not None:
+            adopt_legacy(out, v)         # a folder named as earlier heat2d sweeps did
         stored = None if (out is None or force) else _stored_row(out / v.name, v.digest)
         if stored is not None:
             record(v, {**stored, "variant": v.name}, skipped=True)

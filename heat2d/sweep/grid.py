@@ -17,8 +17,9 @@ from ..errors import ModelError
 from ..model import Model
 from ..model.expr import ExpressionError, evaluate
 
-MAX_FOLDER_NAME = 120
-"""Longer ``NAME=VALUE,...`` folder names become ``variantNNNN``."""
+MAX_FOLDER_NAME = 80
+"""Longest variant folder name; a longer ``NAME-VALUE_...`` name is cut and ends in a
+digest of its values (paths stay well inside Windows' 260 characters)."""
 MAX_VARIANTS = 10_000
 """Most variants one sweep runs, and most values one ``--vary`` list holds (guard: checked
 on the counts before any value list or variant is built)."""
@@ -223,20 +224,47 @@ def _show(value: float | str) -> str:
     return format(value, ".10g") if isinstance(value, float) else str(value)
 
 
+# Folder names: ``NAME-VALUE`` pairs joined by ``_`` (``h_air-10_p_die-2``). Param names
+# are letters, digits and ``_``, so the ``-`` after a name always starts its value (a
+# negative value reads ``t--2``). Kept: letters, digits, ``.``, ``+``, ``-`` (legal on
+# Windows, macOS and Linux); any other run of characters in an expression becomes ``~``
+# (``2*t`` -> ``2~t``). inputs.json keeps the exact values.
+_UNSAFE = re.compile(r"[^A-Za-z0-9.+-]+")
+
+
+def _folder_piece(name: str, value: float | str) -> str:
+    text = _UNSAFE.sub("~", _show(value)).strip("~") or "~"
+    return f"{name}-{text}"
+
+
 def _folder_names(grid: list[dict[str, float | str]]) -> list[str]:
-    """``NAME=VALUE,NAME=VALUE`` per variant, made safe for file systems and unique."""
+    """``NAME-VALUE_NAME-VALUE`` per variant: safe on every file system, unique (also
+    when compared without case, as Windows and macOS do) and at most MAX_FOLDER_NAME
+    characters (a longer one keeps its start and ends in a digest of its values)."""
+    import hashlib
+
     names, used = [], set()
-    for k, values in enumerate(grid):
-        name = ",".join(f"{n}={_show(v)}" for n, v in values.items())
-        name = re.sub(r"[^A-Za-z0-9._=+,-]", "_", name)
+    for values in grid:
+        name = "_".join(_folder_piece(n, v) for n, v in values.items())
         if len(name) > MAX_FOLDER_NAME:
-            name = f"variant{k + 1:04d}"
-        base, copy = name, 2
-        while name in used:
-            name, copy = f"{base}~{copy}", copy + 1
-        used.add(name)
+            digest = hashlib.sha256(repr(sorted(values.items())).encode()).hexdigest()[:8]
+            name = f"{name[:MAX_FOLDER_NAME - 9].rstrip('.~_')}_{digest}"
+        # Windows refuses a name ending in "." (never produced above, checked anyway).
+        base, copy = name.rstrip("."), 2
+        name = base
+        while name.lower() in used:
+            name, copy = f"{base}_copy{copy}", copy + 1
+        used.add(name.lower())
         names.append(name)
     return names
+
+
+def legacy_folder_name(values: Mapping[str, float | str], index: int) -> str:
+    """The folder name earlier heat2d sweeps gave a variant (``NAME=VALUE,...``, or
+    ``variantNNNN`` when long): found and renamed by :func:`.store.adopt_legacy`."""
+    name = ",".join(f"{n}={_show(v)}" for n, v in values.items())
+    name = re.sub(r"[^A-Za-z0-9._=+,-]", "_", name)
+    return name if len(name) <= 120 else f"variant{index + 1:04d}"
 
 
 # ---------------------------------------------------------------------------

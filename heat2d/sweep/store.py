@@ -15,7 +15,7 @@ from typing import Any
 from ..errors import Heat2dError
 from ..model import Model
 from ..version import __version__
-from .grid import _Variant
+from .grid import _Variant, legacy_folder_name
 from .table import _row
 
 INPUTS_NAME = "inputs.json"
@@ -60,6 +60,29 @@ def _stored_row(folder: Path, digest: str) -> dict[str, Any] | None:
                                                           for f in files):
         return None
     return stored["row"]
+
+
+def adopt_legacy(out: Path, v: _Variant) -> bool:
+    """Rename the variant's folder from an earlier heat2d's ``NAME=VALUE,...`` name to its
+    name now, when the new name is free and the old folder's inputs.json holds exactly
+    these values. The folder is then treated as any stored variant (skipped when its
+    digest still matches, cleared and solved again otherwise), so an old sweep folder is
+    carried on, not left beside a new copy. True when a folder was renamed."""
+    old = out / legacy_folder_name(v.values, v.index)
+    new = out / v.name
+    if old == new or new.exists() or not old.is_dir():
+        return False
+    try:
+        stored = json.loads((old / INPUTS_NAME).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    if not isinstance(stored, dict) or stored.get("values") != v.values:
+        return False
+    try:
+        old.rename(new)
+    except OSError:          # left as it is; the variant is solved into its new folder
+        return False
+    return True
 
 
 def _clear_stale(folder: Path) -> None:
