@@ -5,6 +5,7 @@ the node limit, huge repeats and sweeps."""
 
 from __future__ import annotations
 
+import math
 import re
 
 import pytest
@@ -12,8 +13,8 @@ import pytest
 import heat2d
 from heat2d import cli
 from heat2d.errors import ModelError
-from heat2d.fem.geometry import build_geometry
 from heat2d.fem.budget import estimate_nodes
+from heat2d.fem.geometry import build_geometry
 from heat2d.model.expr import ExpressionError, evaluate
 from tests.common import board
 
@@ -204,7 +205,32 @@ def test_a_huge_repeat_is_refused(tmp_path, capsys):
     code, err = _exit_and_error(tmp_path, capsys, board(
         {'power = "power"': 'power = "power"\nrepeat = { count = 1e12, dx = 5 }'}))
     assert code == 2
-    assert 'shape "pad": repeat.count: must be <= 10000 copies, got 1e+12' in err
+    assert 'shape "pad": repeat.count: must be <= 2000 copies, got 1e+12' in err
+
+
+def _plain(extra: str, name: str = "a") -> str:
+    return (f'[model]\nlength_unit = "mm"\n[materials.m]\nk = 1\n[[shape]]\nname = "{name}"\n'
+            'material = "m"\nrect = { x = 0, y = 0, width = 10, height = 2 }\n' + extra
+            + '[[boundary]]\nname = "b"\non = "exterior"\nh = 10\nambient = 20\n')
+
+
+def test_too_many_shapes_long_polygons_and_names_are_refused(tmp_path, capsys):
+    # Guards (docs/model-format.md, Limits and ranges): each of these ran for minutes
+    # (9000 shapes: 337 s; a 100 000-point polygon: 63 s, then a mesher mismatch; a
+    # 200 000-character name: the map drew every glyph for over 120 s).
+    many = "".join(f'[[shape]]\nname = "s{i}"\nmaterial = "m"\n'
+                   f'rect = {{ x = {i * 0.004}, y = 0, width = 0.002, height = 2 }}\n'
+                   for i in range(2001))
+    code, err = _exit_and_error(tmp_path, capsys, _plain(many))
+    assert code == 2 and "[[shape]] #2001: the model has more than 2000 shapes" in err
+    ring = ", ".join(f"[{1 + 0.5 * math.cos(k / 3200):.9f}, {1 + 0.5 * math.sin(k / 3200):.9f}]"
+                     for k in range(20001))
+    code, err = _exit_and_error(tmp_path, capsys, _plain(
+        f'[[shape]]\nname = "p"\nmaterial = "m"\npolygon = [{ring}]\n'))
+    assert code == 2 and 'shape "p": polygon: at most 20000 points, got 20001' in err
+    code, err = _exit_and_error(tmp_path, capsys, _plain("", name="x" * 200_000))
+    assert code == 2 and "name: at most 200 characters, got 200000" in err
+    assert len(err) < 400                              # one short line, not the whole name
 
 
 @pytest.mark.parametrize("vary, match", [

@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 import heat2d
+import heat2d.post.text as table_text
 import heat2d.post.writers as writers
 from heat2d import cli
 from heat2d.cli.common import Terminated
@@ -183,7 +184,7 @@ def test_an_interrupt_after_the_swap_reports_the_new_result(previous, model_file
     out, before = previous
 
     calls = []
-    format_summary = writers.format_summary
+    format_summary = table_text.format_summary
 
     def interrupted_summary(summary):
         calls.append(summary)
@@ -191,7 +192,7 @@ def test_an_interrupt_after_the_swap_reports_the_new_result(previous, model_file
             raise KeyboardInterrupt
         return format_summary(summary)
 
-    monkeypatch.setattr(writers, "format_summary", interrupted_summary)
+    monkeypatch.setattr(table_text, "format_summary", interrupted_summary)
     assert cli.main(["run", str(model_file), "--out", str(out), "--set", "power=2",
                      "--no-estimate"]) == 130
     err = capsys.readouterr().err.splitlines()
@@ -222,6 +223,7 @@ def test_main_restores_the_previous_sigterm_handler(model_file):
 KILLED_WRITE = """
 import os, signal, sys
 from pathlib import Path
+import heat2d.post.text as table_text
 import heat2d.post.writers as writers
 out, where = Path(sys.argv[1]), sys.argv[2]
 if where == "between-renames":

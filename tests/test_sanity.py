@@ -262,7 +262,7 @@ def test_overlapping_void_circles_mesh_and_balance(seed):
 
 
 def test_a_thousand_repeated_copies_paint_exactly():
-    n = 1000
+    n = 999                       # two rows of copies and the board: 1999 of the 2000 shapes allowed
     text = f"""
 [materials.fr4]
 k = 0.3
@@ -349,3 +349,43 @@ def test_bundled_meshes_are_not_said_to_be_forced(path):
     # when refined three times (35k to 76k nodes).
     geometry = build_geometry(heat2d.load(path), refine=3)
     assert build_mesh(geometry).warnings == ()
+
+
+def test_a_corner_only_contact_is_said():
+    # A part placed at the board's corner shares one point with it: heat reaches it
+    # through a single node (a placement slip); along an edge it is a real contact.
+    text = """
+[model]
+length_unit = "mm"
+[materials.m]
+k = 1
+[[shape]]
+name = "board"
+material = "m"
+rect = { x = 0, y = 0, width = 20, height = 1.6 }
+[[shape]]
+name = "part"
+material = "m"
+rect = { x = 20, y = 1.6, width = 3, height = 1 }
+power = 0.1
+[[boundary]]
+name = "base"
+on = "board.bottom"
+temperature = 25
+"""
+    said = build_geometry(heat2d.parse(text)).warnings
+    corner = [w for w in said if "touches other shapes only at a corner (near (20, 1.6))" in w]
+    assert len(corner) == 2 and any('"part"' in w for w in corner)
+    edge = build_geometry(heat2d.parse(text.replace("x = 20, y = 1.6", "x = 17, y = 1.6")))
+    assert not [w for w in edge.warnings if "corner" in w or "touches no other" in w]
+
+
+def test_a_field_past_every_melting_point_is_said():
+    # 1 kW in a 3 x 1 mm pad on a resin board: thousands of °C, a slip in the power (the
+    # melting points: copper 1085 °C, silicon 1414 °C; handbook values, from memory).
+    s = heat2d.solve(heat2d.parse(board({'power = "power"': "power = 1000"})),
+                     estimate=False).summary
+    assert s["temperature"]["max"] > 1500
+    assert any("past the melting point" in w for w in s["warnings"])
+    calm = heat2d.solve(heat2d.parse(board()), estimate=False).summary
+    assert not any("melting point" in w for w in calm["warnings"])

@@ -7,6 +7,8 @@ Exit status: 0 success, 1 internal or solver failure, 2 bad input (nothing writt
 from __future__ import annotations
 
 import argparse
+import os
+import signal
 import sys
 import traceback
 from collections.abc import Callable, Sequence
@@ -16,8 +18,10 @@ from ..version import __version__
 from .common import (
     EXIT_BAD_INPUT,
     EXIT_FAILURE,
+    EXIT_INTERRUPTED,
     EXIT_LIMIT,
     EXIT_OK,
+    EXIT_TERMINATED,
     Terminated,
     UsageError,
     interrupted,
@@ -40,6 +44,18 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     return run_sweep_command(args)
 
 
+def cmd_compare(args: argparse.Namespace) -> int:
+    from .compare import run_compare_command
+
+    return run_compare_command(args)
+
+
+def cmd_report(args: argparse.Namespace) -> int:
+    from .report import run_report_command
+
+    return run_report_command(args)
+
+
 def _sweep_arguments(p: argparse.ArgumentParser) -> None:
     from .sweep import add_sweep_arguments
 
@@ -53,6 +69,11 @@ COMMANDS: dict[str, tuple[Callable[[argparse.Namespace], int], str]] = {
                            "write verify.json and verify.png"),
     "sweep": (cmd_sweep, "solve every combination of parameter values; write sweep.csv and "
                          "sweep.png"),
+    "compare": (cmd_compare, "compare two runs (result folders or models): changes with "
+                             "their error bars; write compare.json, compare.txt and "
+                             "compare.png"),
+    "report": (cmd_report, "write one self-contained HTML report (report.html) of a run or "
+                           "sweep folder, for design reviews; prints cleanly to PDF"),
 }
 
 
@@ -69,6 +90,16 @@ def build_parser() -> argparse.ArgumentParser:
             from .verify import add_verify_arguments
 
             add_verify_arguments(p)
+            continue
+        if name == "compare":
+            from .compare import add_compare_arguments
+
+            add_compare_arguments(p)
+            continue
+        if name == "report":
+            from .report import add_report_arguments
+
+            add_report_arguments(p)
             continue
         p.add_argument("model", help="model file (TOML)")
         p.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
@@ -92,6 +123,9 @@ def build_parser() -> argparse.ArgumentParser:
             p.add_argument("--no-estimate", action="store_true",
                            help="skip the discretization error estimate (an extra solve on the "
                            "refined mesh)")
+            p.add_argument("--report", action="store_true",
+                           help="also write report.html, a self-contained HTML report, into "
+                                "the output folder")
             p.add_argument("--strict", action="store_true",
                            help="exit with status 3 when a shape exceeds its max_temperature")
     return parser
@@ -159,5 +193,20 @@ def _dispatch(argv: Sequence[str] | None) -> int:
 
 
 def console() -> None:
-    """Entry point of the ``heat2d`` console script."""
-    sys.exit(main())
+    """Entry point of the ``heat2d`` console script (and of ``python -m heat2d``)."""
+    status = main()
+    # The command has ended and its outputs are complete: an interrupt during the
+    # interpreter's shutdown still gets its one line and status, not a bare signal death.
+    finished = "the command had finished; its outputs are complete"
+    for signum, code, word in ((signal.SIGTERM, EXIT_TERMINATED, "terminated"),
+                               (signal.SIGINT, EXIT_INTERRUPTED, "interrupted")):
+        if signum == signal.SIGINT and signal.getsignal(signum) is not \
+                signal.default_int_handler:
+            continue                      # ignored by the parent: leave it so
+        signal.signal(signum, lambda *_, c=code, w=word: _late_exit(c, f"{w}: {finished}"))
+    sys.exit(status)
+
+
+def _late_exit(status: int, line: str) -> None:
+    print(line, file=sys.stderr, flush=True)
+    os._exit(status)

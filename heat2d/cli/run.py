@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from .common import EXIT_LIMIT, EXIT_OK, Announcer, Terminated, parse_sets
+from .common import EXIT_LIMIT, EXIT_OK, Announcer, Terminated, parse_sets, received
 
 
 def cmd_run(args: argparse.Namespace) -> int:
@@ -41,17 +41,33 @@ def _holds(out: Path, result) -> bool:
 
 def _run(args: argparse.Namespace, model, out: Path, done: list) -> int:
     from ..pipeline import run
-    from ..post.writers import check_output_folder, format_summary, write
+    from ..post.text import format_summary
+    from ..post.writers import check_output_folder, write
 
     check_output_folder(out)        # refuse a folder of the user's files before solving
     progress = None if args.quiet else Announcer(sys.stderr)
-    result = run(model, method=args.method, refine=args.refine, progress=progress,
+
+    def stage(name: str, event: str) -> None:
+        # An interrupt whose exception was swallowed on its way (inside a finalizer or a
+        # library's own handler) still stops the run at the next stage, before writing.
+        late = received()
+        if late is not None and event != "failed":
+            raise late
+        if progress and event != "check":
+            progress(name, event)
+
+    result = run(model, method=args.method, refine=args.refine, progress=stage,
                  estimate=not args.no_estimate)
+    stage("writing", "check")
     done.append(result)
     if progress:
         progress("writing", "start")
     try:
         files = write(result, out, show_mesh=args.show_mesh)
+        if getattr(args, "report", False):      # report.html beside the results
+            from .report import report_into
+
+            files.append(report_into(out))
     finally:
         if progress:
             progress("writing", "end")
@@ -66,8 +82,9 @@ def _run(args: argparse.Namespace, model, out: Path, done: list) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
+    from ..fem.budget import check_outlines
     from ..fem.geometry import build_geometry
-    from ..fem.mesh import build_mesh, check_outlines
+    from ..fem.mesh import build_mesh
     from ..model import load
     from ..pipeline.adaptive import check_budget
 

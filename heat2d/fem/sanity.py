@@ -29,6 +29,9 @@ MIN_EXTENT_M = {"m": 1e-3, "mm": 1e-4}
 """A model spanning less than this (metres) is smaller than anything drawn in its unit:
 under 1 mm in a "m" model, or under 0.1 mm in a "mm" one (a 30 mm board typed as 0.03),
 the numbers are probably in the wrong unit."""
+CORNER_CONTACT = 10.0
+"""A shape whose outline meets its neighbours over no more than this many times the
+geometry tolerance touches them only at a corner."""
 KELVIN_RANGE = (250.0, 450.0)
 """°C values in this range look like kelvin (−23 °C to 177 °C written in K); boards run
 between about −40 and 150 °C."""
@@ -75,9 +78,29 @@ def _isolated(model: Model, visible: list, tol: float) -> list[str]:
         return []
     geoms = np.array([visible[s.index] for s in solid], dtype=object)
     left, right = shapely.STRtree(geoms).query(geoms, predicate="dwithin", distance=tol)
-    touching = np.bincount(left[left != right], minlength=len(solid)) > 0
+    other = left != right
+    left, right = left[other], right[other]
+    near = np.bincount(left, minlength=len(solid)) > 0
+    # Contact along an edge, not at a point: the length of the outline shared with the
+    # neighbours (a corner contact shares a point, length about the tolerance).
+    # Each neighbour is first clipped to the shape's box, so a large neighbour (a board
+    # with thousands of holes) is not buffered whole for every pair.
+    box = shapely.bounds(geoms[left])
+    near_part = shapely.intersection(geoms[right], shapely.box(
+        box[:, 0] - 2 * tol, box[:, 1] - 2 * tol, box[:, 2] + 2 * tol, box[:, 3] + 2 * tol))
+    shared = np.bincount(left, shapely.length(shapely.intersection(
+        shapely.boundary(geoms[left]), shapely.buffer(near_part, tol))),
+        minlength=len(solid))
+    touching = shared > CORNER_CONTACT * tol
     out = []
-    for s in (s for s, t in zip(solid, touching, strict=True) if not t):
+    for s, g in ((s, g) for s, g, t, n in zip(solid, geoms, touching, near, strict=True)
+                 if n and not t):
+        at = shapely.intersection(g, shapely.buffer(shapely.union_all(
+            [h for h in geoms if h is not g]), tol)).centroid
+        out.append(f"shape \"{s.name}\" touches other shapes only at a corner (near "
+                   f"({at.x:.6g}, {at.y:.6g})): heat passes there through a single node; "
+                   "overlap the shapes or join them along an edge if they are in contact")
+    for s in (s for s, n in zip(solid, near, strict=True) if not n):
         power = " and its power leaves only through them" if (s.power or s.power_density) \
             else ""
         out.append(f"shape \"{s.name}\" touches no other shape: it is a separate body held "
