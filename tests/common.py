@@ -68,3 +68,19 @@ def verify_model(name: str, **params: float | str) -> heat2d.Model:
 def verify_params(name: str, **params: float | str) -> dict[str, float]:
     """The [params] of a verification model as numbers (overrides applied)."""
     return dict(verify_model(name, **params).params)
+
+
+HELD_BLOCK = """
+[materials.m]
+k = 10
+[[shape]]
+name = "s"
+material = "m"
+rect = { x = 0, y = 0, width = 10, height = 5 }
+[[boundary]]
+name = "held"
+on = "s.left"
+temperature = 20
+"""
+"""A block held at 20 °C on its left side, insulated elsewhere, unpowered: 20 °C
+everywhere, every heat flow zero up to round-off."""

@@ -14,6 +14,7 @@ import pytest
 import heat2d
 from heat2d import cli
 from heat2d.post.writers import format_summary
+from tests.common import HELD_BLOCK
 from tests.test_estimate import pipe_wall, with_probes, with_size
 
 # A 1 mm alumina heater over a 3 mm aluminium plate, a contact resistance between them, and
@@ -175,19 +176,7 @@ def test_the_adaptive_table_names_every_target_in_full():
 def test_a_model_without_power_balances():
     # Held at 20 °C on one side and insulated elsewhere: the field is 20 °C everywhere and
     # every heat flow is zero up to round-off; that round-off is no energy imbalance.
-    text = """
-[materials.m]
-k = 10
-[[shape]]
-name = "s"
-material = "m"
-rect = { x = 0, y = 0, width = 10, height = 5 }
-[[boundary]]
-name = "held"
-on = "s.left"
-temperature = 20
-"""
-    result = heat2d.solve(heat2d.parse(text), estimate=False)
+    result = heat2d.solve(heat2d.parse(HELD_BLOCK), estimate=False)
     assert result.summary["temperature"]["max"] == pytest.approx(20.0, abs=1e-12)
     assert abs(result.summary["energy_balance"]["relative_error"]) < 1e-6
     assert not any("energy balance" in w for w in result.summary["warnings"])

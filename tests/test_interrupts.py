@@ -21,7 +21,7 @@ import heat2d.post.text as table_text
 import heat2d.post.writers as writers
 from heat2d import cli
 from heat2d.cli.common import Terminated
-from tests.common import board
+from tests.common import HELD_BLOCK, board
 
 FILES = ["board.png", "board.vtu", "summary.json", "summary.txt"]
 ROOT = Path(__file__).resolve().parents[1]
@@ -381,18 +381,7 @@ def test_sigterm_to_a_parallel_sweep_stops_its_workers(model_file, tmp_path):
 def test_an_unpowered_model_writes_all_four_files(tmp_path, capsys):
     path = tmp_path / "board.toml"
     # Held at 20 °C, insulated elsewhere, no power: 20 °C everywhere.
-    path.write_text("""
-[materials.m]
-k = 10
-[[shape]]
-name = "s"
-material = "m"
-rect = { x = 0, y = 0, width = 10, height = 5 }
-[[boundary]]
-name = "held"
-on = "s.left"
-temperature = 20
-""", encoding="utf-8")
+    path.write_text(HELD_BLOCK, encoding="utf-8")
     out = tmp_path / "out"
     assert cli.main(["run", str(path), "--out", str(out), "--quiet"]) == 0
     assert sorted(p.name for p in out.iterdir()) == FILES
