@@ -26,12 +26,14 @@ ROOMS = {
     "fem": {"errors", "model"},
     "post": {"errors", "version", "model", "fem"},
     "pipeline": {"errors", "model", "fem", "post"},
-    "sweep": {"errors", "version", "model", "fem", "post", "pipeline"},
+    "transient": {"errors", "version", "model", "fem", "post", "pipeline"},
+    "sweep": {"errors", "version", "model", "fem", "post", "pipeline", "transient"},
     "verify": {"errors", "version", "model", "fem", "post", "pipeline"},
     "compare": {"errors", "version", "model", "fem", "post", "pipeline"},
-    "report": {"errors", "version", "model", "fem", "post", "pipeline", "sweep", "compare"},
-    "cli": {"errors", "version", "model", "fem", "post", "pipeline", "sweep", "verify",
-            "compare", "report"},
+    "report": {"errors", "version", "model", "fem", "post", "pipeline", "transient", "sweep",
+               "compare"},
+    "cli": {"errors", "version", "model", "fem", "post", "pipeline", "transient", "sweep",
+            "verify", "compare", "report"},
     "__main__": {"cli"},
 }
 """What each room may import: the pipeline's order (model text -> Model -> geometry ->

@@ -1,9 +1,13 @@
 """Model text -> :class:`Model`: the schema (frozen dataclasses, :mod:`.schema`), its
-reader (:mod:`.reader`, with :mod:`.lines`, :mod:`.base`, :mod:`.parts` and
-:mod:`.boundaries`) and the safe expression evaluator (:mod:`.expr`). Exported here:
-the entry points and the schema names the rest of heat2d uses."""
+reader (:mod:`.reader`, with :mod:`.lines`, :mod:`.base`, :mod:`.parts`,
+:mod:`.boundaries`, :mod:`.timeline` for the [transient] section and values against time,
+:mod:`.electrical` for heat capacity, resistivity and currents) and the safe expression
+evaluator (:mod:`.expr`). Exported here: the entry points and the schema names the rest
+of heat2d uses."""
 
 from .reader import from_dict, load, parse
-from .schema import Boundary, Model, Shape
+from .schema import Boundary, Material, Model, Shape
+from .timeline import Schedule, TransientSettings
 
-__all__ = ["Boundary", "Model", "Shape", "from_dict", "load", "parse"]
+__all__ = ["Boundary", "Material", "Model", "Schedule", "Shape", "TransientSettings",
+           "from_dict", "load", "parse"]

@@ -15,22 +15,29 @@ from ..errors import ModelError
 from . import ranges
 from .expr import ExpressionError, evaluate
 from .lines import LineIndex
+from .schema import ABSOLUTE_ZERO_C
 
+_CURRENT = {"current", "current_pulse", "current_table", "current_steps"}
+_SCHEDULED = {"power_pulse", "power_table", "power_steps", *_CURRENT}
 _ALLOWED = {
     "": {"model", "params", "materials", "shape", "stack", "boundary", "interface", "mesh",
-         "probe", "cut"},
+         "probe", "cut", "transient"},
     "model": {"length_unit", "depth", "title", "axisymmetric"},
-    "material": {"k", "kx", "ky", "note"},
+    "material": {"k", "kx", "ky", "note", "density", "specific_heat", "resistivity",
+                 "resistivity_reference", "temperature_coefficient"},
     "shape": {"name", "material", "void", "rect", "polygon", "circle", "power",
-              "power_density", "mesh_size", "max_temperature", "vias", "repeat"},
-    "stack": {"name", "x", "y", "width", "layers", "mesh_size"},
+              "power_density", "mesh_size", "max_temperature", "vias", "repeat",
+              *_SCHEDULED},
+    "stack": {"name", "x", "y", "width", "layers", "mesh_size", *_CURRENT},
     "layer": {"name", "thickness", "material", "coverage", "fill", "power", "power_density",
-              "mesh_size", "max_temperature"},
+              "mesh_size", "max_temperature", *_SCHEDULED},
     "vias": {"drill", "plating", "pitch", "metal", "fill"},
     "repeat": {"count", "dx", "dy"},
     "interface": {"name", "between", "resistance"},
     "boundary": {"name", "on", "temperature", "heat_flux", "h", "ambient", "emissivity",
-                 "surroundings"},
+                 "surroundings", "temperature_table", "ambient_table", "h_table"},
+    "transient": {"end", "first", "per_decade", "every", "initial", "tolerance", "snapshots",
+                  "zth", "foster_terms", "duties"},
     "mesh": {"size", "min_angle", "accuracy", "max_nodes", "node_limit"},
     "probe": {"name", "at", "accuracy"},
     "cut": {"name", "through"},
@@ -120,6 +127,42 @@ class BaseReader:
             raise self.fail(entry[:60] + "...", f"name: at most {ranges.MAX_NAME} characters, "
                             f"got {len(value.strip())}", self.index.find(where[0], where[1], key))
         return value.strip()
+
+    def temperature_table(self, value: Any, entry: str, key: str, where: tuple[str, int], *,
+                          within: tuple[float, float], unit: str, quantity: str = "value"
+                          ) -> tuple[float, tuple[tuple[float, float], ...] | None]:
+        """A positive number, or a table [[°C, value], ...] increasing in temperature:
+        (the number or the table's value at 25 °C, the table or None)."""
+        if not isinstance(value, list):
+            return self.number(value, entry, key, where, low=0.0, low_open=True,
+                               within=within, what=f" {unit}"), None
+        line = self.index.find(*where, key)
+        if len(value) < 2:
+            raise self.fail(entry, f"{key}: a table needs at least two [°C, {unit}] points",
+                            line)
+        if len(value) > ranges.MAX_TABLE_ROWS:
+            raise self.fail(entry, f"{key}: at most {ranges.MAX_TABLE_ROWS} rows, got "
+                            f"{len(value)}", line)
+        rows: list[tuple[float, float]] = []
+        for j, row in enumerate(value):
+            if not isinstance(row, list) or len(row) != 2:
+                raise self.fail(entry, f"{key}[{j}]: expected [°C, {unit}], got {brief(row)}",
+                                line)
+            t = self.number(row[0], entry, f"{key}[{j}] temperature", where,
+                            low=ABSOLUTE_ZERO_C, low_open=True, high=ranges.TEMPERATURE_C,
+                            what=" °C")
+            v = self.number(row[1], entry, f"{key}[{j}] {quantity}", where, low=0.0,
+                            low_open=True, within=within, what=f" {unit}")
+            if rows and t <= rows[-1][0]:
+                raise self.fail(entry, f"{key}: table temperatures must increase, got "
+                                f"{rows[-1][0]:g} then {t:g} °C", line)
+            rows.append((t, v))
+        ts = [r[0] for r in rows]
+        vs = [r[1] for r in rows]
+        at25 = vs[0] if 25.0 <= ts[0] else vs[-1] if 25.0 >= ts[-1] else next(
+            vs[j - 1] + (vs[j] - vs[j - 1]) * (25.0 - ts[j - 1]) / (ts[j] - ts[j - 1])
+            for j in range(1, len(ts)) if ts[j] >= 25.0)
+        return float(at25), tuple(rows)
 
     def array_of_tables(self, data: dict[str, Any], key: str) -> list[dict[str, Any]]:
         value = data.get(key, [])

@@ -11,7 +11,7 @@ from __future__ import annotations
 from typing import Any
 
 from . import ranges
-from .base import BaseReader, brief
+from .base import brief
 from .schema import (
     ABSOLUTE_ZERO_C,
     BOUNDARY_KEYS,
@@ -22,9 +22,10 @@ from .schema import (
     Selector,
     Shape,
 )
+from .timeline import Schedule, TimelineReader
 
 
-class BoundaryReader(BaseReader):
+class BoundaryReader(TimelineReader):
     """The boundary and interface sections."""
 
     def read_boundaries(self, raw: list[dict[str, Any]], by_name: dict[str, Shape],
@@ -83,8 +84,37 @@ class BoundaryReader(BaseReader):
                                                 low=ABSOLUTE_ZERO_C, low_open=True,
                                                 high=ranges.TEMPERATURE_C, what=" °C")
             out.append(Boundary(name=name, index=i, selector=selector, kind=kind,
-                                line=self.index.find(*where), **values))
+                                line=self.index.find(*where),
+                                schedules=self.boundary_schedules(spec, entry, where),
+                                **values))
         return out
+
+    def boundary_schedules(self, spec: dict[str, Any], entry: str, where: tuple[str, int]
+                           ) -> tuple[tuple[str, Schedule], ...]:
+        """temperature_table, ambient_table, h_table: [[s, value], ...] piecewise linear,
+        each beside its base key (which keeps the kind and the steady value)."""
+        out = []
+        for key, low, high, unit, within in (
+                ("temperature", ABSOLUTE_ZERO_C, ranges.TEMPERATURE_C, "°C", None),
+                ("ambient", ABSOLUTE_ZERO_C, ranges.TEMPERATURE_C, "°C", None),
+                ("h", 0.0, ranges.FILM_COEFFICIENT[1], "W/(m²·K)", ranges.FILM_COEFFICIENT)):
+            table = f"{key}_table"
+            if table not in spec:
+                continue
+            self.needs_transient(entry, table, where)
+            if key not in spec:
+                raise self.fail(entry, f"{table} needs {key} (it selects the kind and is "
+                                "the steady value)", self.index.find(*where, table))
+            rows = self.time_table(spec[table], entry, table, where, unit=unit, low=low,
+                                   high=high, low_open=True)
+            if within is not None:
+                for j, (_, v) in enumerate(rows):
+                    if not within[0] <= v <= within[1]:
+                        raise self.fail(entry, f"{table}[{j}] value: must be between "
+                                        f"{within[0]:g} and {within[1]:g} {unit}, got {v:g}",
+                                        self.index.find(*where, table))
+            out.append((key, Schedule("linear", rows)))
+        return tuple(out)
 
     def selector(self, on: Any, shapes: dict[str, Shape], groups: dict[str, Group], entry: str,
                  where: tuple[str, int]) -> Selector:

@@ -12,11 +12,11 @@ from dataclasses import replace
 from typing import Any
 
 from . import ranges
-from .base import BaseReader
+from .electrical import MaterialPropertyReader, mixed_material
 from .schema import ABSOLUTE_ZERO_C, SIDES, Group, Material, Shape
 
 
-class ShapeReader(BaseReader):
+class ShapeReader(MaterialPropertyReader):
     """The shape and stack sections; ``materials`` is set before they are read and grows
     by the effective materials of via fields and covered layers."""
 
@@ -151,9 +151,11 @@ class ShapeReader(BaseReader):
                       self.size(c["r"], entry, "circle.r", where))
         if "vias" in spec:
             material = self.via_material(spec["vias"], name, material, entry, where)
+        keys = self.power_keys(spec, entry, where)
+        keys.update(self.time_keys(spec, entry, where, void=void, material=material,
+                                   power=keys.get("power"), group="repeat" in spec))
         base = Shape(name=name, index=i, kind=kind, material=material, void=void,
-                     points=points, circle=circle, line=self.index.find(*where),
-                     **self.power_keys(spec, entry, where))
+                     points=points, circle=circle, line=self.index.find(*where), **keys)
         if "repeat" not in spec:
             return [base], None
         rep = self.table(spec["repeat"], entry, "repeat", where)
@@ -177,7 +179,8 @@ class ShapeReader(BaseReader):
                 base, name=f"{name}[{k + 1}]", group=name,
                 points=tuple((px + ox, py + oy) for px, py in base.points),
                 circle=(circle[0] + ox, circle[1] + oy, circle[2]) if circle else None))
-        return copies, Group(name, "repeat", tuple(c.name for c in copies), None, base.line)
+        group = Group(name, "repeat", tuple(c.name for c in copies), None, base.line)
+        return copies, self.group_current(spec, entry, where, group, copies)
 
     def via_material(self, raw: Any, shape: str, host: str | None, entry: str,
                      where: tuple[str, int]) -> str:
@@ -210,17 +213,20 @@ class ShapeReader(BaseReader):
         f_hole = math.pi * ri**2 / pitch**2
         k_fill = 0.0
         note = ""
+        fill_m = None
         if "fill" in via:
             fill = self.material_ref(via["fill"], entry, "fill", where)
-            k_fill = self.constant(fill, entry, line).ky
+            fill_m = self.constant(fill, entry, line)
+            k_fill = fill_m.ky
             note = f", filled with {fill}"
         host_m = self.constant(host, entry, line)
-        ky = f_cu * self.constant(metal, entry, line).ky + f_hole * k_fill \
-            + (1 - f_cu - f_hole) * host_m.ky
+        metal_m = self.constant(metal, entry, line)
+        ky = f_cu * metal_m.ky + f_hole * k_fill + (1 - f_cu - f_hole) * host_m.ky
         name = f"{shape} (vias)"
-        self.materials[name] = Material(
+        self.materials[name] = mixed_material(
             name, host_m.kx, ky, f"{host} with plated vias: drill {drill:g}, plating "
-            f"{plating:g}, pitch {pitch:g}{note}; copper fraction {f_cu:.4f}")
+            f"{plating:g}, pitch {pitch:g}{note}; copper fraction {f_cu:.4f}",
+            [(f_cu, metal_m), (f_hole, fill_m), (1 - f_cu - f_hole, host_m)], metal=metal_m)
         return name
 
     def constant(self, name: str | None, entry: str, line: int | None) -> Material:
@@ -229,6 +235,9 @@ class ShapeReader(BaseReader):
         if m.varies:
             raise self.fail(entry, f"material {name!r} has a temperature table; mixing rules "
                             "need constant conductivities", line)
+        if m.varies_capacity and self.transient is not None:
+            raise self.fail(entry, f"material {name!r} has a density or specific_heat table; "
+                            "mixing rules need constant values", line)
         return m
 
     def read_stack(self, spec: dict[str, Any], i: int) -> tuple[list[Shape], Group]:
@@ -279,20 +288,24 @@ class ShapeReader(BaseReader):
                 fill = self.material_ref(layer["fill"], lentry, "fill", where)
                 m, f = self.constant(material, lentry, line), self.constant(fill, lentry, line)
                 effective = f"{name}.{lname}"
-                self.materials[effective] = Material(
+                self.materials[effective] = mixed_material(
                     effective, phi * m.kx + (1 - phi) * f.kx, phi * m.ky + (1 - phi) * f.ky,
-                    f"{phi:g} {material} in {fill} (parallel rule both ways)")
+                    f"{phi:g} {material} in {fill} (parallel rule both ways)",
+                    [(phi, m), (1 - phi, f)], metal=m)
                 material = effective
             elif "fill" in layer:
                 raise self.fail(lentry, "fill needs coverage", line)
             keys = self.power_keys(layer, lentry, where)
+            keys.update(self.time_keys(layer, lentry, where, void=False, material=material,
+                                       power=keys.get("power")))
             keys.setdefault("mesh_size", size)
             shapes.append(Shape(name=f"{name}.{lname}", index=0, kind="rect", material=material,
                                 points=_rect_points(x, y, width, t), group=name,
                                 line=self.index.find(*where), **keys))
             y += t
-        return shapes, Group(name, "stack", tuple(s.name for s in shapes),
-                             (x, y0, x + width, y), self.index.find(*where))
+        group = Group(name, "stack", tuple(s.name for s in shapes), (x, y0, x + width, y),
+                      self.index.find(*where))
+        return shapes, self.group_current(spec, entry, where, group, shapes)
 
     def exact_keys(self, table: dict[str, Any], keys: set[str], entry: str, key: str,
                    where: tuple[str, int]) -> None:

@@ -59,3 +59,33 @@ MAX_TOML_DEPTH = 10
 conductivity table row, is 5 deep)."""
 MAX_INTEGER = MAX_MAGNITUDE
 """Largest magnitude of a number written in the model text."""
+DENSITY = (1.0, 30_000.0)
+"""Density in kg/m³: aerogels and foams about 10..100, osmium 22 590 (the densest
+element); the guard spans both."""
+SPECIFIC_HEAT = (50.0, 10_000.0)
+"""Specific heat in J/(kg·K): lead and gold about 130, water 4180, hydrogen gas 14 300
+lies outside (solids and liquids only)."""
+RESISTIVITY = (1e-9, 1e3)
+"""Electrical resistivity in Ω·m: silver 1.6e-8, graphite and doped silicon up to about
+1e-3..1; insulators carry no current and take no resistivity."""
+TEMPERATURE_COEFFICIENT = (-0.01, 0.05)
+"""Temperature coefficient of resistivity in 1/K: metals about 0.004 (copper 0.00393),
+carbon and some alloys slightly negative."""
+CURRENT_A = 1e5
+"""Largest magnitude of a conductor's current, A."""
+TIME_END_S = 1e7
+"""Longest transient run, s (about four months); also bounds every time in a schedule."""
+TIME_FIRST_S = 1e-9
+"""Earliest first report time of a log-spaced run, s."""
+PER_DECADE = (1, 100)
+"""Report times per decade of a log-spaced run."""
+MAX_REPORT_TIMES = 100_000
+"""Most report times of a run (and rows of a time table)."""
+MAX_SNAPSHOTS = 10_000
+"""Most field snapshots of a run."""
+FOSTER_TERMS = (1, 12)
+"""Terms of a fitted Foster network."""
+PULSE_COUNT = 1_000_000
+"""Most pulses of a pulse train."""
+MAX_TABLE_ROWS = 10_000
+"""Most rows of a property table against temperature."""

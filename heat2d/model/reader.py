@@ -17,8 +17,6 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from ..errors import ModelError
 from . import ranges
 from .base import brief
@@ -28,7 +26,6 @@ from .expr import CONSTANTS, FUNCTIONS
 from .lines import LineIndex
 from .parts import ShapeReader
 from .schema import (
-    ABSOLUTE_ZERO_C,
     LENGTH_UNITS,
     MAX_MIN_ANGLE,
     Material,
@@ -184,9 +181,11 @@ class _Reader(ShapeReader, BoundaryReader, CutReader):
         default_depth = 1.0 / LENGTH_UNITS[unit]
         depth = self.size(model.get("depth", default_depth), "[model]", "depth",
                           ("model", 0))
+        self.transient = self.read_transient(data.get("transient"))
         materials = self.read_materials(data.get("materials", {}))
         self.materials = materials
         shapes, groups = self.read_shapes(data, order)
+        self.check_capacity(shapes)
         if axisymmetric:
             self.check_radius(shapes)
         by_name = {sh.name: sh for sh in shapes}
@@ -198,11 +197,13 @@ class _Reader(ShapeReader, BoundaryReader, CutReader):
         probes = self.read_probes(self.array_of_tables(data, "probe"))
         cuts = self.read_cuts(self.array_of_tables(data, "cut"))
         mesh = self.read_mesh(data.get("mesh", {}))
+        transient = self.start_state(self.transient, boundaries)
         return Model(source=self.source, length_unit=unit, depth=depth, params=params,
                      materials=tuple(materials.values()), shapes=tuple(shapes),
                      boundaries=tuple(boundaries), probes=tuple(probes), mesh=mesh,
                      title=title, axisymmetric=axisymmetric, groups=tuple(groups),
-                     interfaces=tuple(interfaces), cuts=tuple(cuts), data=raw,
+                     interfaces=tuple(interfaces), cuts=tuple(cuts), transient=transient,
+                     data=raw,
                      overrides=dict(overrides),
                      paint_order=tuple(order))
 
@@ -261,36 +262,15 @@ class _Reader(ShapeReader, BoundaryReader, CutReader):
             note = spec.get("note", "")
             if not isinstance(note, str):
                 raise self.fail(entry, "note: expected a string", self.index.find(*where, "note"))
-            out[name] = Material(name, kx, ky, note, tx, ty)
+            out[name] = Material(name, kx, ky, note, tx, ty,
+                                 **self.property_keys(spec, entry, where))
         return out
 
     def conductivity(self, value: Any, entry: str, key: str, where: tuple[str, int]
                      ) -> tuple[float, Table | None]:
         """A number, or a table [[°C, k], ...] increasing in temperature."""
-        if not isinstance(value, list):
-            return self.number(value, entry, key, where, low=0.0, low_open=True,
-                               within=ranges.CONDUCTIVITY, what=" W/(m·K)"), None
-        line = self.index.find(*where, key)
-        if len(value) < 2:
-            raise self.fail(entry, f"{key}: a table needs at least two [°C, W/(m·K)] points",
-                            line)
-        rows = []
-        for j, row in enumerate(value):
-            if not isinstance(row, list) or len(row) != 2:
-                raise self.fail(entry, f"{key}[{j}]: expected [°C, W/(m·K)], got {brief(row)}",
-                                line)
-            t = self.number(row[0], entry, f"{key}[{j}] temperature", where,
-                            low=ABSOLUTE_ZERO_C, low_open=True, high=ranges.TEMPERATURE_C,
-                            what=" °C")
-            k = self.number(row[1], entry, f"{key}[{j}] conductivity", where, low=0.0,
-                            low_open=True, within=ranges.CONDUCTIVITY, what=" W/(m·K)")
-            if rows and t <= rows[-1][0]:
-                raise self.fail(entry, f"{key}: table temperatures must increase, got "
-                                f"{rows[-1][0]:g} then {t:g} °C", line)
-            rows.append((t, k))
-        table = tuple(rows)
-        t, k = np.array(table).T
-        return float(np.interp(25.0, t, k)), table
+        return self.temperature_table(value, entry, key, where, within=ranges.CONDUCTIVITY,
+                                      unit="W/(m·K)", quantity="conductivity")
 
     def read_probes(self, raw: list[dict[str, Any]]) -> list[Probe]:
         out: list[Probe] = []

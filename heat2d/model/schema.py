@@ -15,11 +15,14 @@ import copy
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ..errors import ModelError
+
+if TYPE_CHECKING:
+    from .timeline import Schedule, TransientSettings
 
 LENGTH_UNITS: dict[str, float] = {"m": 1.0, "mm": 1e-3, "um": 1e-6}
 """Metres per model length unit."""
@@ -32,7 +35,23 @@ BOUNDARY_KEYS = {"temperature": "temperature", "heat_flux": "heat_flux", "h": "c
 """Model key that selects each boundary kind."""
 
 Table = tuple[tuple[float, float], ...]
-"""Conductivity against temperature: ((°C, W/(m·K)), ...), temperatures increasing."""
+"""A property against temperature: ((°C, value), ...), temperatures increasing."""
+
+RESISTIVITY_FLOOR = 1e-3
+"""ρ(T) is held at or above this fraction of ρ_ref (a linear law never reaches 0)."""
+
+
+def _table_at(const: float, table: Table | None, temperature: np.ndarray
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """Value and slope of a constant or a piecewise-linear table (held beyond its ends)."""
+    temperature = np.asarray(temperature, dtype=float)
+    if table is None:
+        return np.full_like(temperature, const), np.zeros_like(temperature)
+    t, v = np.array(table).T
+    slope = np.diff(v) / np.diff(t)
+    seg = np.clip(np.searchsorted(t, temperature) - 1, 0, len(t) - 2)
+    inside = (temperature >= t[0]) & (temperature <= t[-1])
+    return np.interp(temperature, t, v), np.where(inside, slope[seg], 0.0)
 
 
 @dataclass(frozen=True)
@@ -40,7 +59,10 @@ class Material:
     """A conductor: ``kx``, ``ky`` in W/(m·K) along the model axes.
 
     A temperature-dependent axis has a table (piecewise linear in °C, held constant
-    beyond its ends); ``kx``/``ky`` then hold its value at 25 °C.
+    beyond its ends); ``kx``/``ky`` then hold its value at 25 °C. For transient runs
+    ``density`` (kg/m³) and ``specific_heat`` (J/(kg·K)), each a number or a table (the
+    number then its value at 25 °C); for current, the electrical ``resistivity`` (Ω·m) at
+    ``resistivity_reference`` (°C) and its ``temperature_coefficient`` (1/K).
     """
 
     name: str
@@ -49,6 +71,51 @@ class Material:
     note: str = ""
     kx_table: Table | None = None
     ky_table: Table | None = None
+    density: float | None = None
+    specific_heat: float | None = None
+    density_table: Table | None = None
+    specific_heat_table: Table | None = None
+    resistivity: float | None = None
+    resistivity_reference: float = 20.0
+    temperature_coefficient: float = 0.0
+    lacks_capacity: str | None = None
+    """For a mixed material without ρc: the constituent material that lacks it."""
+
+    @property
+    def has_capacity(self) -> bool:
+        """True when density and specific heat are both known."""
+        return self.density is not None and self.specific_heat is not None
+
+    @property
+    def varies_capacity(self) -> bool:
+        """True when ρc depends on temperature."""
+        return self.density_table is not None or self.specific_heat_table is not None
+
+    @property
+    def conducts(self) -> bool:
+        """True when the material has an electrical resistivity (can carry current)."""
+        return self.resistivity is not None
+
+    def capacity_at(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """ρc (J/(m³·K)) and d(ρc)/dT at temperatures T (°C); tables piecewise linear,
+        held constant beyond their ends (as :meth:`k_at`)."""
+        if not self.has_capacity:
+            raise ValueError(f"material {self.name!r} has no density and specific_heat")
+        rho, drho = _table_at(float(self.density), self.density_table, temperature)
+        c, dc = _table_at(float(self.specific_heat), self.specific_heat_table, temperature)
+        return rho * c, drho * c + rho * dc
+
+    def resistivity_at(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """ρ(T) (Ω·m) and dρ/dT: ρ = ρ_ref (1 + α (T − T_ref)), floored at
+        :data:`RESISTIVITY_FLOOR`·ρ_ref (the slope is 0 where floored)."""
+        if self.resistivity is None:
+            raise ValueError(f"material {self.name!r} has no resistivity")
+        temperature = np.asarray(temperature, dtype=float)
+        ref, alpha = self.resistivity, self.temperature_coefficient
+        linear = ref * (1 + alpha * (temperature - self.resistivity_reference))
+        floor = RESISTIVITY_FLOOR * ref
+        return (np.maximum(linear, floor),
+                np.where(linear > floor, ref * alpha, 0.0) + 0.0 * temperature)
 
     @property
     def isotropic(self) -> bool:
@@ -62,17 +129,9 @@ class Material:
     def k_at(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
                                                      np.ndarray]:
         """kx, ky and their slopes dk/dT at the given temperatures (°C)."""
-        out = []
-        for const, table in ((self.kx, self.kx_table), (self.ky, self.ky_table)):
-            if table is None:
-                out += [np.full_like(temperature, const), np.zeros_like(temperature)]
-            else:
-                t, k = np.array(table).T
-                slope = np.diff(k) / np.diff(t)
-                seg = np.clip(np.searchsorted(t, temperature) - 1, 0, len(t) - 2)
-                inside = (temperature >= t[0]) & (temperature <= t[-1])
-                out += [np.interp(temperature, t, k), np.where(inside, slope[seg], 0.0)]
-        return out[0], out[2], out[1], out[3]
+        kx, dkx = _table_at(self.kx, self.kx_table, temperature)
+        ky, dky = _table_at(self.ky, self.ky_table, temperature)
+        return kx, ky, dkx, dky
 
 
 @dataclass(frozen=True)
@@ -96,6 +155,13 @@ class Shape:
     max_temperature: float | None = None
     group: str | None = None
     line: int | None = None
+    schedule: Schedule | None = None
+    """Power (W) against time in a transient model; ``power`` is then the value before
+    t = 0 and between pulses."""
+    current: float | None = None
+    """Current (A) through the shape along the depth (None: not a conductor alone)."""
+    current_schedule: Schedule | None = None
+    """Current (A) against time in a transient model."""
 
     @property
     def rect(self) -> tuple[float, float, float, float] | None:
@@ -147,6 +213,13 @@ class Boundary:
     emissivity: float | None = None
     surroundings: float | None = None
     line: int | None = None
+    schedules: tuple[tuple[str, Schedule], ...] = ()
+    """Values against time in a transient model: ("temperature" | "ambient" | "h",
+    piecewise-linear schedule); the base key keeps the steady value."""
+
+    def schedule(self, key: str) -> Schedule | None:
+        """The schedule of ``key`` (temperature, ambient or h), or None."""
+        return dict(self.schedules).get(key)
 
     @property
     def label(self) -> str:
@@ -168,6 +241,9 @@ class Group:
     members: tuple[str, ...]
     rect: tuple[float, float, float, float] | None = None
     line: int | None = None
+    current: float | None = None
+    """Current (A) through all members with resistivity together, along the depth."""
+    current_schedule: Schedule | None = None
 
 
 @dataclass(frozen=True)
@@ -246,6 +322,7 @@ class Model:
     groups: tuple[Group, ...] = ()
     interfaces: tuple[Interface, ...] = ()
     cuts: tuple[Cut, ...] = ()
+    transient: TransientSettings | None = None
     data: Mapping[str, Any] = field(default_factory=dict, compare=False, repr=False)
     overrides: Mapping[str, float | str] = field(default_factory=dict, compare=False,
                                                  repr=False)
@@ -322,6 +399,47 @@ class Model:
         """True when k depends on temperature or a boundary radiates."""
         return (any(m.varies for m in self.materials)
                 or any(b.emissivity is not None for b in self.boundaries))
+
+    @property
+    def is_transient(self) -> bool:
+        """True when the model has a [transient] section."""
+        return self.transient is not None
+
+    @property
+    def conductors(self) -> tuple[tuple[str, tuple[Shape, ...], float], ...]:
+        """(name, member shapes carrying current, current A) of each shape or group that
+        takes a current; a group's members are those whose material has resistivity."""
+        out = []
+        for sh in self.shapes:
+            if sh.current is not None:
+                out.append((sh.name, (sh,), sh.current))
+        for g in self.groups:
+            if g.current is not None:
+                members = tuple(s for s in self.members(g.name)
+                                if not s.void and self.material(str(s.material)).conducts)
+                out.append((g.name, members, g.current))
+        return tuple(out)
+
+    @property
+    def has_current(self) -> bool:
+        """True when any conductor carries a current (Joule heating)."""
+        return bool(self.conductors)
+
+    @property
+    def used_materials(self) -> tuple[Material, ...]:
+        """The materials of non-void shapes, once each, in file order."""
+        names = {s.material for s in self.shapes if not s.void}
+        return tuple(m for m in self.materials if m.name in names)
+
+    @property
+    def transient_nonlinear(self) -> bool:
+        """True when a transient march needs Newton's method: :attr:`nonlinear`, a used
+        material's ρc depends on temperature, or a current flows through a material whose
+        resistivity depends on temperature."""
+        if self.nonlinear or any(m.varies_capacity for m in self.used_materials):
+            return True
+        return any(self.material(str(s.material)).temperature_coefficient != 0
+                   for _, members, _ in self.conductors for s in members)
 
     def group(self, name: str) -> Group:
         for g in self.groups:
