@@ -20,8 +20,10 @@ from ..errors import SolveError
 
 __all__ = ["Cauer", "Foster", "cauer", "foster_fit", "modal_network"]
 
-TARGET = 0.01
-"""Fit error below which the smallest Foster network is accepted (max |fit − z|/R)."""
+TARGET = 0.002
+"""Fit error below which the smallest Foster network is accepted (max |fit − z|/R). At
+0.2 % the slab of Carslaw & Jaeger ch. 3 gets four terms and its slowest term within
+0.6 % (at 1 %, three terms lump the faster modes into the slowest, 1.9 % off)."""
 PER_DECADE = 4
 """Candidate time constants per decade for the non-negative least-squares fit."""
 WEIGHT = 1e4
