@@ -26,24 +26,26 @@ def _slab_curve():
 def test_foster_fit_of_the_slab():
     t, z = _slab_curve()
     fit = foster_fit(t, z, R_SLAB)
-    # reported error is the max |fit − z|/R over the points, below the 0.2 % target
-    assert fit.error == pytest.approx(np.abs(fit.z(t) - z).max() / R_SLAB, rel=1e-9)
+    # reported error is the max |fit − z|/z over the points, below the 0.2 % target
+    assert fit.error == pytest.approx(np.abs(fit.z(t) / z - 1).max(), rel=1e-9)
     assert fit.error < 0.002
     assert fit.rms <= fit.error
     assert np.all(fit.r >= 0) and np.all(fit.tau > 0)
     assert fit.r.sum() == pytest.approx(R_SLAB, rel=1e-9)     # Σ R = r_total imposed
     # C&J ch. 3: the slowest term R₁ = 8R/π², τ₁ = 4L²/(π²α). The default network (the
-    # smallest within 0.2 %: four terms here) recovers it within 1 % (measured 0.55 %) ...
+    # smallest within 0.2 % at every point: six terms here) recovers it within 1 %
+    # (measured 0.36 %) ...
     r1, tau1 = (x[0] for x in slab_foster(L, K_, RHO_C, AREA, 1))
-    assert len(fit.r) <= 5
+    assert len(fit.r) <= 7
     assert fit.r[-1] == pytest.approx(r1, rel=0.01)
     assert fit.tau[-1] == pytest.approx(tau1, rel=0.01)
-    # ... a six-term network recovers it within 1 % (measured 0.04 %)
-    six = foster_fit(t, z, R_SLAB, terms=6)
-    assert len(six.r) == 6
-    assert six.r[-1] == pytest.approx(r1, rel=0.01)
-    assert six.tau[-1] == pytest.approx(tau1, rel=0.01)
-    assert six.error < 1e-3
+    # ... and an eight-term network within 0.05 % (measured 0.027 %), 0.01 % at every point
+    eight = foster_fit(t, z, R_SLAB, terms=8)
+    assert len(eight.r) == 8
+    assert eight.r[-1] == pytest.approx(r1, rel=5e-4)
+    assert eight.tau[-1] == pytest.approx(tau1, rel=5e-4)
+    assert eight.error < 2e-4
+    six = eight
     assert six.r.sum() == pytest.approx(R_SLAB, rel=1e-9)
 
 
