@@ -1,4 +1,4 @@
-"""heat2d: steady 2-D heat conduction for circuit-board cross-sections.
+"""heat2d: 2-D heat conduction for circuit-board cross-sections, steady and transient.
 
 The pipeline, one stage per module, a frozen dataclass between stages::
 
@@ -8,7 +8,8 @@ The pipeline, one stage per module, a frozen dataclass between stages::
       --post.writers.write--> files
 
 The rooms: ``model`` (model text -> Model), ``fem`` (the finite-element core), ``post``
-(results, error estimate, map, writers), ``pipeline`` (chains the stages), ``sweep``
+(results, error estimate, map, writers), ``pipeline`` (chains the stages), ``transient``
+(the march in time, thermal impedance, RC networks, periodic peaks), ``sweep``
 (parameter studies), ``verify`` (verification cases as data), ``cli`` (the command line,
 the only place that prints). :func:`solve` (also called :func:`run`) chains the stages.
 The solver stack (scipy, shapely, triangle) loads on first use, so ``import heat2d`` and
@@ -33,8 +34,16 @@ def solve(model: Model, **options):
     """Solve a model end to end and return its :class:`~heat2d.post.results.Result`.
 
     The same as :func:`heat2d.pipeline.run`; see there for the options
-    (``method``, ``refine``, ``reuse``, ``resistances``, ``progress``).
+    (``method``, ``refine``, ``reuse``, ``resistances``, ``progress``). A transient model
+    (one with a ``[transient]`` section) is marched in time by
+    :func:`heat2d.transient.run_transient` instead (options ``method``, ``refine``,
+    ``progress``, ``zth``, ``check``), which returns a
+    :class:`~heat2d.transient.TransientResult` holding the history as arrays over time.
     """
+    if model.is_transient:
+        from .transient.run import run_transient
+
+        return run_transient(model, **options)
     from .pipeline import run as _run
 
     return _run(model, **options)

@@ -56,14 +56,23 @@ def _run(args: argparse.Namespace, model, out: Path, done: list) -> int:
         if progress and event != "check":
             progress(name, event)
 
-    result = run(model, method=args.method, refine=args.refine, progress=stage,
-                 estimate=not args.no_estimate)
+    if model.is_transient:
+        from ..transient.output import format_transient
+        from ..transient.run import run_transient
+
+        result = run_transient(model, method=args.method, refine=args.refine,
+                               progress=stage)
+        format_summary = format_transient               # noqa: F811
+    else:
+        result = run(model, method=args.method, refine=args.refine, progress=stage,
+                     estimate=not args.no_estimate)
     stage("writing", "check")
     done.append(result)
     if progress:
         progress("writing", "start")
     try:
-        files = write(result, out, show_mesh=args.show_mesh)
+        files = (result.save(out, show_mesh=args.show_mesh) if model.is_transient
+                 else write(result, out, show_mesh=args.show_mesh))
         if getattr(args, "report", False):      # report.html beside the results
             from .report import report_into
 

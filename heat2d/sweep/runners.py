@@ -68,6 +68,16 @@ def _metrics(summary: dict[str, Any]) -> dict[str, Any]:
         row[f"heat_out_w:{name}"] = b["heat_out_w"]
     for name, lim in summary["limits"].items():
         row[f"margin_k:{name}"] = lim["margin"]
+    transient = summary.get("transient")
+    if transient:
+        # Powered shapes: the peak over the run, the periodic peak of a pulse train, and
+        # the thermal impedance at each decade of time.
+        for name, z in transient["zth"].items():
+            row[f"peak_c:{name}"] = transient["peaks"][name]["max"]
+            for t, value in z["at"].items():
+                row[f"zth_k_per_w:{name}@{t}s"] = value
+        for name, p in transient["periodic"].items():
+            row[f"periodic_peak_c:{name}"] = p["peak"]
     return row
 
 
@@ -96,6 +106,11 @@ def _solve(task: _Task, state: _Reuse):
     """
     from ..pipeline import run
 
+    if task.model.is_transient:
+        from ..transient.run import run_transient
+
+        state.last = None
+        return run_transient(task.model, refine=task.refine, method=task.method)
     adaptive = task.model.adaptive
     result = run(task.model, refine=task.refine, method=task.method,
                  reuse=None if adaptive else state.last, estimate=task.estimate)
@@ -107,6 +122,9 @@ def _save(task: _Task, outcome: dict[str, Any], result) -> dict[str, Any]:
     """Write (or pack, for a remote worker) the variant's outputs into the outcome."""
     from ..post.writers import write
 
+    if getattr(result, "history", None) is not None:    # a transient run: all its files
+        def write(result, folder, formats=None):          # noqa: F811
+            return result.save(folder)
     try:
         if task.ship:
             with tempfile.TemporaryDirectory(prefix="heat2d-variant-") as tmp:

@@ -139,8 +139,8 @@ def foster_fit(t, z, r_total: float, *, terms: int | None = None,
     R ≥ 0). N is `terms` (at most the number of non-zero candidate terms: more are not
     supported by the data), or the smallest (up to `max_terms`) with max |fit − z|/z
     below :data:`TARGET` at every point (relative to the curve itself, so that the short
-    times a pulse rating reads count), or else the best found. The resistances are finally scaled so that
-    Σ Rᵢ = r_total exactly.
+    times a pulse rating reads count), or else the best found. The resistances are
+    finally scaled so that Σ Rᵢ = r_total exactly.
     """
     t = np.asarray(t, dtype=float).ravel()
     z = np.asarray(z, dtype=float).ravel()

@@ -25,6 +25,7 @@ EXACT = 4096
 """Terms of the periodic sum added one by one before the block quadrature takes over."""
 NODES = 24
 """Gauss–Legendre points per block of the tail."""
+_GAUSS = np.polynomial.legendre.leggauss(NODES)
 BLOCKS = 80
 """Doubling blocks at most (2⁸⁰ periods: far beyond any time constant)."""
 
@@ -64,7 +65,7 @@ def periodic_peak(z, power: float, width: float, period: float, *,
 
     first = np.arange(1, EXACT + 1, dtype=float)
     total = float(fz(np.array([width]))[0]) + float(np.sum(f(first)))
-    x, wq = np.polynomial.legendre.leggauss(NODES)
+    x, wq = _GAUSS
     a = float(EXACT + 1)
     for _ in range(BLOCKS):
         b = 2 * a

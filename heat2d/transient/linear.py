@@ -1,0 +1,162 @@
+"""Solves with C + s K on a ladder of s: one factorization per rung, kept while in use.
+
+The stage matrices of TR-BDF2 (s = γh/2) and of backward Euler (s = h) are C + s K_ff.
+Rung k holds s_k = s₀·2^k; a step whose s sits on a rung solves directly with that rung's
+factor, a step between rungs (a step shortened to land on a report time) solves by
+conjugate gradients preconditioned with the factor of the rung below: the preconditioned
+operator has its eigenvalues in [1, s/s_k) ⊂ [1, 2), so CG needs about a dozen
+back-substitutions for 1e-10. Where C dominates (small s), Jacobi-preconditioned CG
+replaces the factorization altogether.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+from collections import OrderedDict
+
+import numpy as np
+import scipy.sparse as sp
+
+from ..errors import SolveError
+from ..fem.solver import Factor
+
+CG_TOL = 1e-7
+"""Relative residual of the conjugate-gradient solves."""
+JACOBI_ITERATIONS = 60
+"""Rungs are first solved by Jacobi-preconditioned CG (cheap where C dominates K: small
+steps); the first rung whose solve needs more iterations than this, and every rung
+above it, is factorized instead."""
+FILTER_TOL = 1e-3
+"""Relative residual of the solve that filters an error estimate (a 0.1 % estimate)."""
+KEEP = 4
+"""Factorizations kept (the rungs most recently used)."""
+
+
+class Ladder:
+    """Solves (C + s K) x = b for the s of a rung or between rungs."""
+
+    def __init__(self, K: sp.csr_matrix, C: np.ndarray, s0: float, method: str) -> None:
+        self.K = K.tocsr()
+        self.C = C
+        self.s0 = s0
+        self.method = method
+        self.factors: OrderedDict[int, object] = OrderedDict()
+        self.base: Factor | None = None
+        self.jacobi_below: float = math.inf  # rungs from here up are factorized
+        self._last: tuple[float, sp.csr_matrix] | None = None
+        self.factorizations = 0
+        self.back_solves = 0
+        self.cg_iterations = 0
+        self.jacobi_rungs = 0
+
+    def rung(self, s: float) -> int:
+        return math.floor(math.log2(s / self.s0) + 1e-9)
+
+    def matrix(self, s: float) -> sp.csr_matrix:
+        """C + s K (the last one kept: both stages of a step share it)."""
+        if self._last is None or self._last[0] != s:
+            self._last = (s, (self.K * s + sp.diags(self.C)).tocsr())
+        return self._last[1]
+
+    def _factor(self, k: int):
+        if k in self.factors:
+            self.factors.move_to_end(k)
+            return self.factors[k]
+        s = self.s0 * 2.0**k
+        if k < self.jacobi_below:
+            f = ("jacobi", 1.0 / (self.C + s * self.K.diagonal()))
+            self.jacobi_rungs += 1
+        else:
+            A = self.matrix(s)
+            self.factorizations += 1
+            if self.base is None or self.method != "direct":
+                self.base = Factor(self.method, A, keep_order=True)
+                f = self.base
+            else:
+                f = copy.copy(self.base)          # the base's fill-reducing ordering reused
+                f.update(A)
+        self.factors[k] = f
+        while len(self.factors) > KEEP:
+            self.factors.popitem(last=False)
+        return f
+
+    def _near(self, s: float) -> tuple[object, bool]:
+        """The factor for s: its own rung's, or a neighbour's (cached first, else the
+        rung above); and whether s sits on that rung."""
+        k = self.rung(s)
+        if abs(s / (self.s0 * 2.0**k) - 1) < 1e-12:
+            return self._factor(k), True
+        use = k + 1 if (k + 1 in self.factors or k not in self.factors) else k
+        return self._factor(use), False
+
+    def solve(self, s: float, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
+        f, on_rung = self._near(s)
+        if on_rung and not isinstance(f, tuple):
+            self.back_solves += 1
+            return f(b)
+        A = self.matrix(s)
+        if isinstance(f, tuple):
+            diag = 1.0 / (self.C + s * self.K.diagonal())
+            x = self._cg(A, b, lambda r: diag * r, x0, JACOBI_ITERATIONS)
+            if x is not None:
+                return x
+            # Too slow: factorize this rung and every one above it from now on.
+            k = self.rung(s)
+            self.jacobi_below = min(self.jacobi_below, k)
+            for key in [key for key in self.factors if key >= k]:
+                del self.factors[key]
+            return self.solve(s, b, x0)
+        return self._cg(A, b, self._precond(f), x0)
+
+    def approx(self, s: float, v: np.ndarray) -> np.ndarray:
+        """(C + s_k K)⁻¹ v with the rung at or below s (a filter for error estimates)."""
+        f, _ = self._near(s)
+        if isinstance(f, tuple):
+            # Not the diagonal alone: where s K_ii >> C_i it would shrink smooth modes'
+            # errors too (a conducting body cooling as one); a loose CG solve instead.
+            diag = 1.0 / (self.C + s * self.K.diagonal())
+            x = self._cg(self.matrix(s), v, lambda r: diag * r, None, 4 * JACOBI_ITERATIONS,
+                         tol=FILTER_TOL)
+            return diag * v if x is None else x
+        self.back_solves += 1
+        return f(v)
+
+    def _precond(self, f):
+        def apply(r):
+            self.back_solves += 1
+            return f(r)
+        return apply
+
+    def _cg(self, A, b, M, x0, limit: int | None = None, tol: float = CG_TOL
+            ) -> np.ndarray | None:
+        """Preconditioned conjugate gradients (A symmetric positive definite); None when
+        ``limit`` iterations do not reach :data:`CG_TOL`. Inner products without BLAS
+        (a BLAS dot of a long vector can stall behind thread contention)."""
+        x = np.zeros_like(b) if x0 is None else x0.copy()
+        r = b - A @ x
+        # Relative to the first residual: the guess (the last step's state) carries most
+        # of b, and the heat balance of a small step lives in the correction.
+        norm_b = float(np.sqrt(np.multiply(r, r).sum()))
+        if norm_b == 0:
+            return x
+        z = M(r)
+        p = z.copy()
+        rz = float(np.multiply(r, z).sum())
+        goal = (tol * norm_b) ** 2
+        for it in range(500):
+            if float(np.multiply(r, r).sum()) <= goal:
+                return x
+            if limit is not None and it >= limit:
+                return None
+            q = A @ p
+            alpha = rz / float(np.multiply(p, q).sum())
+            x += alpha * p
+            r -= alpha * q
+            z = M(r)
+            rz_new = float(np.multiply(r, z).sum())
+            p = z + (rz_new / rz) * p
+            rz = rz_new
+            self.cg_iterations += 1
+        raise SolveError(f"conjugate gradients did not reach {CG_TOL:g} in 500 iterations "
+                         f"(relative residual {np.sqrt(np.multiply(r, r).sum()) / norm_b:.1e})")

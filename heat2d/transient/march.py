@@ -1,0 +1,338 @@
+"""The time march: C dT/dt + K T = F(t) by TR-BDF2 with local error control.
+
+TR-BDF2 with γ = 2 − √2 (Bank et al., IEEE Trans. Electron Devices 32 (1985); Hosea &
+Shampine, Appl. Numer. Math. 20 (1996)): a trapezoidal stage to t + γh and a BDF2 stage
+to t + h, both with the matrix C + (γh/2) K; L-stable and second order. In enthalpy form
+(H the stored heat, R = K T − F the net heat leaving each node):
+
+    H(T_γ) + s R(T_γ)     = H(T_n) − s R(T_n)                  s = γh/2
+    H(T_n+1) + s R(T_n+1) = a H(T_γ) − c H(T_n)                a = 1/(γ(2−γ)), a − c = 1
+
+so H(T_n+1) − H(T_n) = −h (ad R_n + ad R_γ + d R_n+1): the scheme's own quadrature, with
+which the energy balance is summed. The local error is the difference from the
+third-order quadrature through the same three points, filtered by (C + sK)⁻¹ so that
+stiff components do not inflate it (the filtering of Hosea & Shampine's estimate, from
+memory); its max-norm is held below ``tolerance``.
+
+Step sizes sit on a ladder s = s₀·2^k (one factorization per rung, kept while in use;
+:mod:`.linear`); a step moves up one rung when its error is below tolerance/16 (the
+error of a doubled step is 8× larger), down as many rungs as the error asks when it is
+rejected, and is shortened to land exactly on report times, snapshot times and schedule
+breaks. After t = 0 and after each break two backward-Euler steps (matrix C + s K of the
+same ladder) damp the components excited by a jump: TR-BDF2's amplification R(z) is
+negative for z < −2.41 (tending to 0⁻), so a large step right after a face temperature
+jumps makes the stiff components change sign (tests/test_march.py measures a node
+falling by 9.5 K without these steps, none with them).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import replace
+
+import numpy as np
+
+from ..errors import SolveError
+from ..fem.capacity import varies
+from ..fem.solver import choose_method
+from ..fem.solver import solve as steady_solve
+from .forcing import forcing
+from .history import History, Recorder
+from .steppers import LinearStepper, NewtonStepper
+
+GAMMA = 2 - math.sqrt(2)
+D = GAMMA / 2
+A = 1 / (GAMMA * (2 - GAMMA))
+C_ = (1 - GAMMA) ** 2 / (GAMMA * (2 - GAMMA))
+B_SCHEME = (A * D, A * D, D)
+"""TR-BDF2 as a quadrature of −R over the step, at t, t + γh, t + h."""
+W2 = 1 / (6 * GAMMA * (1 - GAMMA))
+W3 = 0.5 - 1 / (6 * (1 - GAMMA))
+B_EMBED = (1 - W2 - W3, W2, W3)
+"""The third-order quadrature through the same three points (exact for cubics)."""
+STARTUP = 2
+"""Backward-Euler steps after t = 0 and after each schedule break."""
+GROW = 1 / 16
+MAX_REJECTS = 60
+
+
+def _targets(times, store_at, breaks, end) -> np.ndarray:
+    allt = np.concatenate([np.asarray(times, float), np.asarray(store_at, float), breaks])
+    return np.unique(allt[(allt > 0) & (allt <= end)])
+
+
+def steady_start(system, *, power: Mapping[str, object] | None = None,
+                 boundary: str | None = None, method: str = "auto") -> np.ndarray:
+    """The steady state (nodal °C) with every power and boundary value as it is just
+    before t = 0 (a schedule's ``initial``), the ``"steady"`` start of :func:`march`."""
+    chosen = method if method != "auto" else choose_method(len(system.K.indptr) - 1)
+    return _initial(system, forcing(system, power, boundary), "steady", chosen)
+
+
+def _initial(system, drive, initial, method: str) -> np.ndarray:
+    n = system.K.shape[0]
+    if isinstance(initial, str):
+        if initial != "steady":
+            raise ValueError(f"initial must be 'steady', a number or a nodal array, "
+                             f"got {initial!r}")
+        F0 = drive.F(0.0, drive.initial_power)
+        sys0 = replace(system, F=F0, fixed_value=drive.fixed_values(0.0))
+        dK = drive.dK(0.0)
+        if dK is not None and not system.nonlinear:
+            sys0 = replace(sys0, K=(system.K + dK).tocsr())
+        return steady_solve(sys0, method=method).temperature
+    T = np.broadcast_to(np.asarray(initial, dtype=float), (n,)).copy()
+    T[system.fixed] = drive.fixed_values(0.0)
+    return T
+
+
+def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
+          power: Mapping[str, object] | None = None, boundary: str | None = None,
+          tolerance: float = 0.01, store_at: Sequence[float] = (), method: str = "auto",
+          plan: tuple[np.ndarray, np.ndarray] | None = None, check: bool = False,
+          first_step: float | None = None, land_reports: bool = True,
+          rung: float | None = None,
+          progress: Callable[[float, float], None] | None = None) -> History:
+    """Integrate C dT/dt + K T = F(t) from the initial state over the report times.
+
+    Parameters
+    ----------
+    system
+        The assembled :class:`~heat2d.fem.assembly.System`.
+    times
+        Report times (s), increasing, > 0; the last is the end of the run.
+    initial
+        ``"steady"`` (the steady state with each power and boundary value as just before
+        t = 0), a temperature (°C, uniform) or a nodal array (°C).
+    rho_c
+        Volumetric heat capacity per triangle or one number (J/(m³·K)) instead of the
+        materials' density and specific heat.
+    power
+        None: each shape's schedule or constant power. A mapping shape name -> W, Schedule
+        or callable of t: only these shapes are powered (see :func:`.forcing.forcing`).
+    boundary
+        None, or ``"zero"`` for all boundary values zero (linear models: the rise).
+    tolerance
+        K: the local time-step error allowed in each step (max over nodes).
+    store_at
+        Times (s, within the run) at which the whole nodal field is kept.
+    method
+        Linear solver of the stage matrices: ``auto``, ``direct`` or ``multigrid``.
+    plan
+        (step end times, backward-Euler flags): take exactly these steps, without error
+        control (a replay, a fixed-step study).
+    check
+        Estimate the time-step error: march again on the steps of this march each split
+        in two; the finer march is returned, with ``error`` and ``peak_error`` =
+        |coarse − fine|/3 (second order: the error of the finer march).
+    first_step
+        s: the first step; default a quarter of the first report time or of the shortest
+        gap between schedule breaks.
+    land_reports
+        True: steps land exactly on every report time. False: only on schedule breaks,
+        snapshot times and the end; the figures at report times in between come from the
+        quadratic through the step's three stage states (third-order, as accurate as the
+        step), so the steps follow the error control alone.
+    rung
+        s: the lowest rung s₀ of the step ladder (matrices C + s₀2^k K); default from the
+        first step (the check march: half the first march's, so its halved steps sit on
+        rungs).
+    progress
+        Called as progress(t, end) after each accepted step.
+    """
+    times = np.asarray(times, dtype=float)
+    if times.ndim != 1 or len(times) == 0 or np.any(np.diff(times) <= 0) or times[0] <= 0:
+        raise ValueError("times must be increasing and > 0")
+    end = float(times[-1])
+    drive = forcing(system, power, boundary)
+    breaks = drive.breaks(end)
+    targets = _targets(times if land_reports else times[-1:], store_at, breaks, end)
+    chosen = method if method != "auto" else choose_method(len(system.K.indptr) - 1)
+    T0 = _initial(system, drive, initial, chosen)
+    gaps = np.diff(np.concatenate([[0.0], breaks])) if len(breaks) else np.array([end])
+    h_first = first_step or min(times[0], targets[0], float(gaps.min())) / 4
+    if plan is not None:
+        h_first = float(np.diff(np.concatenate([[0.0], plan[0]])).min())
+    nonlinear = system.nonlinear or varies(system, rho_c) or drive.varies_matrix
+    s0 = rung or D * h_first
+    stepper = (NewtonStepper(system, drive, T0, rho_c, chosen) if nonlinear
+               else LinearStepper(system, drive, T0, rho_c, s0, chosen))
+    rec = Recorder(system, drive, T0, rho_c, times, store_at)
+    rec.record(T0, 0.0, np.zeros(len(system.fixed)))
+    rec.track(T0, 0.0)
+    report = (set(np.searchsorted(targets, times).tolist()) if land_reports
+              else {len(targets) - 1})
+    between = [] if land_reports else list(times[:-1])
+    snap = set(np.searchsorted(targets, np.asarray(store_at, float)).tolist())
+    if 0.0 in np.asarray(store_at, float):
+        rec.snapshot(T0, 0.0)
+    is_break = np.isin(targets, breaks)
+
+    t, T = 0.0, T0
+    k = 0                               # rung: s = s0 2^k
+    startup = STARTUP
+    j = 0                               # next target
+    p = 0                               # plan position
+    rejects = 0
+    rejected_total = 0
+    local = []
+    while j < len(targets):
+        target = targets[j]
+        if plan is not None:
+            t_new, euler = float(plan[0][p]), bool(plan[1][p])
+            h = t_new - t
+            s = h if euler else D * h
+        else:
+            euler = startup > 0
+            s = s0 * 2.0**k
+            h = s if euler else s / D
+        landing = t + h * (1 + 1e-6) >= target
+        if plan is not None:
+            if t_new > target * (1 + 1e-12):
+                raise ValueError(f"the planned steps pass the report time {target:g} s")
+            landing = abs(t_new - target) <= 1e-9 * max(h, 1e-300)
+        if landing:
+            h = target - t
+            s = h if euler else D * h
+        try:
+            step = _step(stepper, rec, T, t, h, s, euler)
+        except SolveError:
+            if plan is not None:
+                raise
+            step = None
+        err = np.inf if step is None else step[1]
+        if plan is None and not err <= tolerance:
+            rejects += 1
+            rejected_total += 1
+            if rejects > MAX_REJECTS:
+                raise SolveError(f"time step rejected {MAX_REJECTS} times at t = {t:.6g} s "
+                                 f"(step {h:.3g} s, error {err:.3g} K)",
+                                 file=system.model.source)
+            order = 2 if euler else 3
+            drop = 1 if not np.isfinite(err) else max(
+                1, math.ceil(math.log(err / (0.5 * tolerance)) / math.log(2**order)))
+            k = math.floor(math.log2(s / s0) + 1e-9) - drop
+            continue
+        rejects = 0
+        T_prev = T
+        T, _, e_in, e_out, Tg = step
+        rec.energy_in += e_in
+        rec.energy_out += e_out
+        rec.steps.append(h)
+        rec.flags.append(euler)
+        local.append(err)
+        t_prev = t
+        t = float(target) if landing else t + h
+        while between and between[0] <= t:
+            tau = between.pop(0)
+            Tt = _between(stepper, T_prev, Tg, T, t_prev, h, tau, euler)
+            rec.record(Tt, tau, _reaction(stepper, Tt, tau, tau - t_prev), left=tau - t_prev)
+        rec.ends.append(t)
+        rec.track(T, t)
+        p += 1
+        if landing:
+            if j in report:
+                rec.record(T, t, _reaction(stepper, T, t, h), left=h)
+            if j in snap:
+                rec.snapshot(T, t)
+            if is_break[j] and plan is None:
+                startup = STARTUP + 1
+            j += 1
+        if plan is None:
+            if startup > 0:
+                startup -= 1
+                if startup == 0:
+                    k -= 1
+            elif not landing and err < GROW * tolerance:
+                k += 1
+        if progress:
+            progress(t, end)
+    counts = {**stepper.counts(), "steps": len(rec.steps), "rejected": rejected_total,
+              "largest_local_error_k": max(local, default=0.0)}
+    hist = rec.history(T, counts)
+    if not check:
+        return hist
+    ends = np.asarray(rec.ends)
+    starts = np.concatenate([[0.0], ends[:-1]])
+    flags = np.asarray(rec.flags)
+    fine_ends = np.column_stack([(starts + ends) / 2, ends]).ravel()
+    fine = march(system, times=times, initial=T0, rho_c=rho_c, power=power,
+                 boundary=boundary, tolerance=tolerance, store_at=store_at, method=method,
+                 plan=(fine_ends, np.repeat(flags, 2)), land_reports=land_reports,
+                 rung=s0 / 2, progress=progress)
+    error = np.abs(np.nanmax(hist.shape_max, axis=1) - np.nanmax(fine.shape_max, axis=1)) / 3
+    peak_error = np.abs(hist.peak_max - fine.peak_max) / 3
+    return replace(fine, error=error, peak_error=peak_error,
+                   stats={**fine.stats, "coarse": counts})
+
+
+def _reaction(stepper, T: np.ndarray, t: float, left: float) -> np.ndarray:
+    """Heat the fixed nodes take in at (T, t): dH/dt + R there, W (powers as at the end
+    of the step of length ``left`` that reached t)."""
+    fixed = stepper.fixed
+    if not len(fixed):
+        return np.zeros(0)
+    R = stepper.residual(T, t, left)[fixed]
+    drive = stepper.drive
+    if drive.fixed_fn:
+        dt = 1e-6 * max(t, 1e-9)
+        slope = (drive.fixed_values(t + dt) - drive.fixed_values(max(t - dt, 0.0))) / (
+            t + dt - max(t - dt, 0.0))
+        R = R + stepper.capacity(T)[fixed] * slope
+    return R
+
+
+def _between(stepper, T0, Tg, T1, t0: float, h: float, tau: float, euler: bool
+             ) -> np.ndarray:
+    """The state at tau inside the step [t0, t0 + h]: the quadratic through the states at
+    t0, t0 + γh and t0 + h (a backward-Euler step: the line); fixed nodes at their value."""
+    x = (tau - t0) / h
+    if euler or Tg is None:
+        T = (1 - x) * T0 + x * T1
+    else:
+        g = GAMMA
+        T = (T0 * (x - g) * (x - 1) / g + Tg * x * (x - 1) / (g * (g - 1))
+             + T1 * x * (x - g) / (1 - g))
+    return stepper.with_fixed(T, tau)
+
+
+def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
+          euler: bool):
+    """One step from (T, t): (T_new, error estimate K, energy in J, energy out J, the
+    state at t + γh or None)."""
+    free, fixed = stepper.free, stepper.fixed
+    t1 = t + h                          # powers there: the left limit (left=h)
+    Hn = stepper.H(T)
+    Rn = stepper.residual(T, t)
+    drive = rec.drive
+    if euler:
+        T1 = stepper.stage(s, Hn[free], t1, T, h)
+        H1 = stepper.H(T1)
+        R1 = stepper.residual(T1, t1, h)
+        est = stepper.filter(s, 0.5 * h * (Rn[free] - R1[free]))
+        points = ((t1, T1, R1, 1.0),)
+    else:
+        tg = t + GAMMA * h
+        Tg = stepper.stage(s, Hn[free] - s * Rn[free], tg, T)
+        Hg = stepper.H(Tg)
+        guess = T + (Tg - T) / GAMMA
+        T1 = stepper.stage(s, A * Hg[free] - C_ * Hn[free], t1, guess, h)
+        H1 = stepper.H(T1)
+        Rg = stepper.residual(Tg, tg)
+        R1 = stepper.residual(T1, t1, h)
+        raw = (H1[free] - Hn[free]) + h * (B_EMBED[0] * Rn[free] + B_EMBED[1] * Rg[free]
+                                           + B_EMBED[2] * R1[free])
+        est = stepper.filter(s, raw)
+        points = ((t, T, Rn, B_SCHEME[0]), (tg, Tg, Rg, B_SCHEME[1]),
+                  (t1, T1, R1, B_SCHEME[2]))
+    err = float(np.abs(est).max()) if len(est) else 0.0
+    if not np.all(np.isfinite(T1)):
+        return T1, np.inf, 0.0, 0.0, None
+    lefts = (None, None, h)[-len(points):]
+    e_in = h * sum(w * drive.total_power(tp, lf)
+                   for (tp, _, _, w), lf in zip(points, lefts, strict=True))
+    e_edge = h * sum(w * rec.edge_out(Tp, tp).sum() for tp, Tp, _, w in points)
+    e_fixed = -(H1[fixed] - Hn[fixed]).sum() - h * sum(w * Rp[fixed].sum()
+                                                       for _, _, Rp, w in points)
+    return T1, err, e_in, e_edge + e_fixed, (None if euler else Tg)

@@ -1,0 +1,387 @@
+"""Chains a transient run: Model -> mesh -> System -> History, then the thermal impedance
+of each powered shape, its RC networks and its periodic peaks -> :class:`TransientResult`.
+
+The run's own history follows the model's schedules from its start state. The thermal
+impedance Z(t) of a powered shape is a separate march: a step of power in that shape
+alone. For a linear model it is the rise per watt above the boundaries (every boundary
+value zero, 1 W), which superposition makes exact for any power; for a nonlinear model
+(k(T), radiation, ρc(T), resistivity with α ≠ 0) it is the rise above the zero-power
+steady state for a step of the shape's peak power, per watt: the impedance at that
+operating point, not a constant of the design.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from ..errors import SolveError
+from ..fem.assembly import assemble
+from ..fem.budget import check_outlines
+from ..fem.capacity import capacity
+from ..fem.geometry import build_geometry
+from ..fem.mesh import build_mesh
+from ..fem.solver import solve
+from .forcing import forcing
+from .history import History
+from .march import march
+from .network import cauer, foster_fit, modal_network
+from .periodic import duty_family, periodic_peak
+
+Progress = Callable[[str, str], None]
+"""Called as progress(stage, event) with event "start", then "end" or "failed"."""
+
+MODES = 24
+"""Eigenpairs of the modal network (the slowest modes: the check of the fitted network
+at times past the fastest of them)."""
+MODAL_LIMIT = 400_000
+"""Free nodes above which the modal check is skipped (shift-invert eigsh costs many
+solves with the factorization)."""
+
+
+@dataclass(frozen=True, repr=False, eq=False)
+class TransientResult:
+    """A transient run: its history, the impedance curves and networks, and the summary.
+
+    Attributes
+    ----------
+    system
+        The assembled system (mesh, model).
+    history
+        The run's own response at the report times (:class:`~.history.History`).
+    zth
+        shape name -> (t (s), Z (K/W)) of a unit step of power in that shape alone.
+    networks
+        shape name -> {"foster": Foster, "cauer": Cauer, "modal": Foster or None,
+        "r_total": steady K/W}.
+    duty
+        shape name -> {"widths": s, "duties": (...), "peaks": (D+1, W) K/W}.
+    periodic
+        shape name -> periodic-steady-state figures of its pulse train.
+    summary
+        What ``summary.json`` holds.
+    log_time
+        The report times are log-spaced.
+    """
+
+    system: Any
+    history: History
+    zth: dict
+    networks: dict
+    duty: dict
+    periodic: dict
+    summary: dict = field(compare=False)
+    log_time: bool = True
+
+    @property
+    def model(self):
+        return self.system.model
+
+    @property
+    def mesh(self):
+        return self.system.mesh
+
+    @property
+    def times(self) -> np.ndarray:
+        return self.history.times
+
+    @property
+    def temperature(self) -> np.ndarray:
+        """Nodal temperature at the end of the run, °C."""
+        return self.history.final
+
+    def peak(self, shape: str) -> float:
+        """The largest temperature of a shape over the run, °C."""
+        return self.summary["transient"]["peaks"][shape]["max"]
+
+    def save(self, out_dir, **options):
+        """Write the same files as ``heat2d run`` into ``out_dir``."""
+        from .output import save
+
+        return save(self, out_dir, **options)
+
+    def __repr__(self) -> str:
+        tr = self.summary["transient"]
+        hot = max(tr["peaks"].items(), key=lambda kv: kv[1]["max"])
+        return (f"TransientResult({self.model.stem!r}: to {tr['end_s']:g} s in "
+                f"{tr['steps']} steps; peak {hot[1]['max']:.4g} °C in {hot[0]!r} at "
+                f"{hot[1]['time_s']:.4g} s; energy balance "
+                f"{tr['energy_balance']['relative_error']:.1e})")
+
+
+def run_transient(model, *, method: str = "auto", refine: float = 1.0,
+                  progress: Progress | None = None, zth: bool | None = None,
+                  check: bool = True) -> TransientResult:
+    """Solve a transient model (one with a ``[transient]`` section) end to end.
+
+    Parameters
+    ----------
+    model
+        From :func:`heat2d.load`; ``model.transient`` holds the time settings.
+    method
+        Linear solver of the step matrices: ``auto``, ``direct`` or ``multigrid``.
+    refine
+        Divide every target edge length by this factor.
+    progress
+        Optional callback told when each stage starts and ends.
+    zth
+        Compute the impedance curves and networks; default the model's ``zth`` setting.
+    check
+        Estimate the time-step error of every peak by a second march on halved steps.
+
+    Returns
+    -------
+    TransientResult
+    """
+    from .summary import build_summary
+
+    settings = model.transient
+    if settings is None:
+        raise ValueError("the model has no [transient] section")
+    timings: dict[str, float] = {}
+
+    def stage(name: str, func, *args, **kwargs):
+        if progress:
+            progress(name, "start")
+        start = time.perf_counter()
+        try:
+            value = func(*args, **kwargs)
+        except BaseException:
+            if progress:
+                progress(name, "failed")
+            raise
+        timings[name] = time.perf_counter() - start
+        if progress:
+            progress(name, "end")
+        return value
+
+    check_outlines(model, refine=refine)
+    geometry = stage("geometry", build_geometry, model, refine=refine)
+    mesh = stage("mesh", build_mesh, geometry)
+    system = stage("assembly", assemble, mesh)
+    times = report_times(system, settings)
+    initial = "steady" if settings.initial == "steady" else float(settings.start_temperature)
+    history = stage("march", march, system, times=times, initial=initial,
+                    tolerance=settings.tolerance, store_at=settings.snapshot_times(),
+                    method=method, check=check)
+    zth_on = settings.zth if zth is None else zth
+    curves, networks, duty, periodic = {}, {}, {}, {}
+    if zth_on:
+        curves, networks = stage("impedance", impedances, system, times, settings, method)
+        for name, net in networks.items():
+            widths = _widths(times)
+            duty[name] = {"widths": widths, "duties": tuple(settings.duties),
+                          "peaks": duty_family(net["foster"].z, widths, settings.duties)}
+        periodic = stage("periodic", periodic_figures, system, history, networks,
+                         tolerance=settings.tolerance, method=method)
+    result = TransientResult(system=system, history=history, zth=curves, networks=networks,
+                             duty=duty, periodic=periodic, summary={},
+                             log_time=settings.log_spaced)
+    start = time.perf_counter()
+    summary = build_summary(result, timings)
+    summary["timings_s"]["summary"] = time.perf_counter() - start
+    return replace(result, summary=summary)
+
+
+MAX_EDGE_TIMES = 5000
+"""Schedule edges (pulse starts and ends, table times) added to the report times, at most
+this many (the earliest): the history then shows each pulse's peak and the time
+series holds it."""
+
+
+def report_times(system, settings) -> np.ndarray:
+    """The model's report times with the schedules' edges (the temperature is continuous
+    in time, so the value at a pulse's end is the peak that pulse reaches)."""
+    times = settings.report_times()
+    edges = forcing(system).breaks(float(times[-1]))[:MAX_EDGE_TIMES]
+    return np.union1d(times, edges)
+
+
+def powered_shapes(system) -> list[tuple[str, float]]:
+    """(name, peak power W) of each shape with a power or schedule, in model order."""
+    drive = forcing(system)
+    out = []
+    for i in drive.powered:
+        shape = system.model.shapes[i]
+        peak = shape.schedule.peak if shape.schedule is not None else shape.power
+        out.append((shape.name, float(peak or 0.0)))
+    return out
+
+
+def impedances(system, times: np.ndarray, settings, method: str) -> tuple[dict, dict]:
+    """Z(t) of a power step in each powered shape alone, and its Foster, Cauer and modal
+    networks with the steady resistance as their total."""
+    model = system.model
+    linear = not model.transient_nonlinear
+    curves, networks = {}, {}
+    if not linear:
+        zero_state = _state_at_zero(system, {}, settings.tolerance, method)
+    for name, peak in powered_shapes(system):
+        if peak <= 0:
+            continue
+        index = model.shape(name).index
+        # K per W: a rise of `tolerance` K at the shape's peak power.
+        if linear:
+            hist = march(system, times=times, initial=0.0, power={name: 1.0},
+                         boundary="zero", tolerance=settings.tolerance / peak, method=method)
+            z = hist.shape_max[:, index]
+            r_total, node = _steady_rise(system, name, method)
+        else:
+            hist = march(system, times=times, initial=zero_state, power={name: peak},
+                         tolerance=settings.tolerance, method=method)
+            base = hist.shape_max[0, index]
+            z = (hist.shape_max[:, index] - base) / peak
+            # The steady state at the peak power is the start state of a march held there.
+            steady = march(system, times=times[:1], initial="steady", power={name: peak},
+                           tolerance=settings.tolerance, method=method)
+            r_total = float((steady.shape_max[0, index] - base) / peak)
+            node = None
+        t, zz = hist.times[1:], z[1:]
+        if not r_total > 0 or not np.isfinite(r_total):
+            continue
+        foster = foster_fit(t, zz, r_total, terms=settings.foster_terms)
+        try:
+            ladder = cauer(foster)
+        except SolveError:
+            ladder = None
+        modal = _modal(system, name, node, method) if linear and node is not None else None
+        curves[name] = (hist.times, z)
+        networks[name] = {"foster": foster, "cauer": ladder, "modal": modal,
+                          "r_total": r_total, "linear": linear, "power_w": peak}
+    return curves, networks
+
+
+def _steady_rise(system, name: str, method: str) -> tuple[float, int]:
+    """Steady max rise of shape ``name`` per watt in it (K/W) and the node where it is."""
+    drive = forcing(system, {name: 1.0}, "zero")
+    unit = replace(system, F=drive.F(0.0), fixed_value=np.zeros(len(system.fixed)))
+    T = solve(unit, method=method).temperature
+    tri = system.mesh.triangles[system.mesh.triangle_shape == system.model.shape(name).index]
+    nodes = np.unique(tri)
+    node = int(nodes[np.argmax(T[nodes])])
+    return float(T[node]), node
+
+
+def _modal(system, name: str, node: int, method: str):
+    """The exact network of the discrete model from K φ = λ C φ, observed at ``node``."""
+    n = system.K.shape[0]
+    free = np.ones(n, dtype=bool)
+    free[system.fixed] = False
+    count = int(free.sum())
+    if count < 3 or count > MODAL_LIMIT:
+        return None
+    K = system.K.tocsr()[free][:, free].tocsc()
+    C = capacity(system)[0][free]
+    p = np.asarray(forcing(system, {name: 1.0}, "zero").B.todense()).ravel()[free]
+    w = np.zeros(n)
+    w[node] = 1.0
+    return modal_network(K, C, p, w[free], count=min(MODES, count - 2))
+
+
+def periodic_figures(system, history: History, networks: dict, *, tolerance: float = 0.01,
+                     method: str = "auto") -> dict:
+    """For each shape with a repeating pulse train: the peak in periodic steady state.
+
+    Linear models, by superposition of the step response (the Foster network):
+    T = T_base + (P_pulse − P_base)·[Z(tp) + Σ (Z(nT + tp) − Z(nT))], with T_base the
+    steady max of the shape at the powers between pulses (the start state when it is
+    steady). Nonlinear models: by marching the repeating train (:func:`march_periodic`)
+    until the peak changes by less than ``tolerance`` K from one period to the next.
+    """
+    out = {}
+    for shape in system.model.shapes:
+        s = shape.schedule
+        if s is None or s.kind != "pulse" or s.period is None or shape.name not in networks:
+            continue
+        net = networks[shape.name]
+        entry = {"pulse_w": s.amplitude, "between_w": s.base, "width_s": s.width,
+                 "period_s": s.period, "duty": s.width / s.period}
+        if net["linear"]:
+            factor = periodic_peak(net["foster"].z, 1.0, s.width, s.period)
+            base = float(history.shape_max[0, shape.index])
+            if system.model.transient.initial != "steady":
+                base = _steady_max(system, shape.name, s.base, method)
+            entry.update(rise_per_w=factor, peak=base + (s.amplitude - s.base) * factor,
+                         method="superposition of the step response")
+        else:
+            peak, periods = march_periodic(system, shape.name, tolerance=tolerance,
+                                           method=method)
+            entry.update(peak=peak, periods=periods, tolerance_k=tolerance,
+                         method="marched to periodicity")
+        out[shape.name] = entry
+    return out
+
+
+MAX_PERIODS = 400
+"""Periods a nonlinear pulse train is marched for at most, from the steady state at its
+mean power, before its periodic peak is reported as not settled."""
+
+
+def march_periodic(system, name: str, *, tolerance: float = 0.01, method: str = "auto",
+                   block: int = 8) -> tuple[float, int]:
+    """Peak of shape ``name`` in the periodic steady state of its repeating pulse train
+    (every other source as scheduled), marched from the steady state at the train's mean
+    power, so that mainly the ripple has to settle, in blocks of ``block`` periods.
+    Returns (peak °C, periods marched).
+
+    Raises
+    ------
+    SolveError
+        The peak still changes by more than ``tolerance`` after :data:`MAX_PERIODS`.
+    """
+    model = system.model
+    shape = model.shape(name)
+    s = replace(shape.schedule, count=None, delay=0.0)
+    mean = s.base + (s.amplitude - s.base) * s.width / s.period
+    sources = _sources(model)
+    state = _state_at_zero(system, {**sources, name: mean}, tolerance, method)
+    ends = s.width + s.period * np.arange(block)
+    times = np.append(ends, s.period * block)       # the block ends on a whole period
+    last, periods = None, 0
+    while periods < MAX_PERIODS:
+        hist = march(system, times=times, initial=state, power={**sources, name: s},
+                     tolerance=tolerance, method=method)
+        peaks = hist.shape_max[1:-1, shape.index]
+        if last is not None:
+            peaks = np.concatenate([[last], peaks])
+        periods += block
+        if abs(peaks[-1] - peaks[-2]) < tolerance:
+            return float(peaks[-1]), periods
+        last, state = float(peaks[-1]), hist.final    # the train repeats: restart at 0
+    raise SolveError(f"the periodic peak of shape \"{name}\" still changes by more than "
+                     f"{tolerance:g} K per period after {MAX_PERIODS} periods",
+                     file=model.source, entry=f'shape "{name}"')
+
+
+def _sources(model) -> dict:
+    """Every powered shape's schedule or constant power, for ``march(power=...)``."""
+    return {sh.name: (sh.schedule if sh.schedule is not None else sh.power)
+            for sh in model.shapes if sh.schedule is not None or
+            (sh.power is not None and sh.power_density is None)}
+
+
+def _state_at_zero(system, power: dict, tolerance: float, method: str) -> np.ndarray:
+    """The steady state of the given powers as they are just before t = 0 (nodal °C)."""
+    return march(system, times=np.array([1e-12]), initial="steady", power=power,
+                 tolerance=tolerance, method=method, store_at=(0.0,),
+                 first_step=1e-12).snapshots[0]
+
+
+def _steady_max(system, name: str, power: float, method: str) -> float:
+    """Steady max of shape ``name`` with every source at its power before t = 0 and this
+    one at ``power``."""
+    model = system.model
+    state = _state_at_zero(system, {**_sources(model), name: power}, 0.01, method)
+    tri = system.mesh.triangles[system.mesh.triangle_shape == model.shape(name).index]
+    return float(state[np.unique(tri)].max())
+
+
+def _widths(times: np.ndarray) -> np.ndarray:
+    """Pulse widths for the duty family: 10 per decade across the report times."""
+    lo, hi = float(times[0]), float(times[-1])
+    count = max(int(round(10 * np.log10(hi / lo))) + 1, 2)
+    return np.logspace(np.log10(lo), np.log10(hi), count)
