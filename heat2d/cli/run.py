@@ -126,8 +126,39 @@ def cmd_check(args: argparse.Namespace) -> int:
     for m in model.materials:
         varies = " (varies with T)" if m.varies else ""
         print(f"{m.name:<20} {m.kx:>9.4g} {m.ky:>9.4g}  {m.note}{varies}")
+    if model.is_transient:
+        _print_transient(model)
+    if model.has_current:
+        print(f"\n{'conductor':<20} {'current A':>10}  members")
+        for name, members, current in model.conductors:
+            print(f"{name:<20} {current:>10.4g}  {', '.join(m.name for m in members)}")
     print(f"\nmesh: {len(mesh.points)} nodes, {len(mesh.triangles)} triangles, smallest angle "
           f"{mesh.min_angle():.1f}°, target size {geometry.size:g} {unit}")
     for w in (*geometry.warnings, *mesh.warnings):
         print(f"warning: {w}")
     return EXIT_OK
+
+
+def _print_transient(model) -> None:
+    """The time settings, the heat capacity of each material and the schedules."""
+    st = model.transient
+    times = st.report_times()
+    spacing = (f"every {st.every:g} s" if st.every else
+               f"log-spaced from {times[0]:g} s, {st.per_decade} per decade")
+    start = st.initial if st.initial == "steady" else f"{st.start_temperature:g} °C"
+    print(f"\ntransient: to {st.end:g} s, {len(times)} report times {spacing}; start "
+          f"{start}; step tolerance {st.tolerance:g} K")
+    print(f"{'material':<20} {'density':>9} {'c':>9}  kg/m³, J/(kg·K) at 25 °C")
+    for m in model.used_materials:
+        rho = "-" if m.density is None else f"{m.density:.4g}"
+        c = "-" if m.specific_heat is None else f"{m.specific_heat:.4g}"
+        print(f"{m.name:<20} {rho:>9} {c:>9}")
+    for s in model.shapes:
+        if s.schedule is not None:
+            sc = s.schedule
+            what = (f"pulses of {sc.amplitude:g} W, {sc.width:g} s"
+                    + (f" every {sc.period:g} s" if sc.period else "")
+                    + (f", {sc.count} of them" if sc.count else "")
+                    + f"; {sc.base:g} W between" if sc.kind == "pulse"
+                    else f"{sc.kind} table of {len(sc.points)} points")
+            print(f"power of {s.name}: {what}")

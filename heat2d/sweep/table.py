@@ -44,8 +44,11 @@ PLOT_NAME = "sweep.png"
 FIXED_COLUMNS = ("max_temperature_c", "max_temperature_error_k", "hot_spot_shape")
 """``max_temperature_error_k`` only when the error estimate is asked for."""
 TAIL_COLUMNS = ("solve_time_s", "status", "error")
-COLUMN_GROUPS = (("probe:", "probes"), ("heat_out_w:", "boundaries"), ("margin_k:", "limits"))
-"""Per-name columns: prefix and the summary section they come from."""
+COLUMN_GROUPS = (("probe:", "probes"), ("heat_out_w:", "boundaries"), ("margin_k:", "limits"),
+                 ("peak_c:", "transient peaks"), ("periodic_peak_c:", "transient periodic"),
+                 ("zth_k_per_w:", "transient zth"))
+"""Per-name columns: prefix and the summary section they come from (the transient ones
+only for a model with [transient])."""
 TEXT_COLUMNS = ("variant", "hot_spot_shape", "status", "error")
 
 
@@ -150,7 +153,10 @@ _KEY_UNITS = {
     **dict.fromkeys(("max_temperature", "temperature", "ambient", "surroundings"), "°C"),
     "resistance": "m²·K/W", "accuracy": "K",
     **dict.fromkeys(("k", "kx", "ky"), "W/(m·K)"),
-    **dict.fromkeys(("emissivity", "coverage", "count"), ""),
+    **dict.fromkeys(("emissivity", "coverage", "count", "per_decade", "foster_terms"), ""),
+    "density": "kg/m³", "specific_heat": "J/(kg·K)", "current": "A", "resistivity": "Ω·m",
+    "resistivity_reference": "°C", "temperature_coefficient": "1/K",
+    **dict.fromkeys(("end", "first", "every", "period", "delay", "snapshots"), "s"),
 }
 """The unit of each model key that takes a number (docs/model-format.md); ``""`` is a
 pure number. A conductivity table's rows are ``[°C, W/(m·K)]``."""
@@ -161,6 +167,12 @@ def _key_unit(path: tuple, length: str) -> str | None:
     if not keys or keys[0] in ("params", "mesh") and len(keys) == 1:
         return None
     unit = _KEY_UNITS.get(keys[-1])
+    if keys[-1] == "width" and any(k.endswith("_pulse") for k in keys):
+        unit = "s"                                       # a pulse's width is a time
+    table = next((k for k in keys if k.endswith(("_table", "_steps"))), None)
+    if table and path and isinstance(path[-1], int):     # [s, value] rows of a schedule
+        unit = "s" if path[-1] == 0 else _KEY_UNITS.get(
+            {"power": "power", "current": "current"}.get(table.split("_")[0], table[:-6]))
     if keys[-1] in ("k", "kx", "ky") and path and isinstance(path[-1], int):
         unit = "°C" if path[-1] == 0 else unit           # a k(T) table row
     return length if unit == "length" else unit
