@@ -47,8 +47,10 @@ def run_compare_command(args: argparse.Namespace) -> int:
     """
     from ..compare import compare_sides, format_comparison, load_side, write_comparison
 
-    a = load_side(args.a, label="A", method=args.method)
-    b = load_side(args.b, label="B", method=args.method)
+    from ..transient.run import run_transient
+
+    a = load_side(args.a, label="A", method=args.method, transient=run_transient)
+    b = load_side(args.b, label="B", method=args.method, transient=run_transient)
     doc = compare_sides(a, b)
     files = write_comparison(a, b, doc, args.out)
     if not args.quiet:

@@ -23,13 +23,15 @@ from ..model import Model
 from ..version import __version__
 from .sides import Side, load_side
 from .text import caution, verdict
+from .transient import check_modes, compare_transient
 
 SAME_POINTS_RTOL = 1e-9
 """Two meshes are the same when their node coordinates agree to this fraction of the
 model's size (round-off of the written VTU coordinates is far below it)."""
 
 
-def compare(a: str | Path | Model, b: str | Path | Model, *, method: str = "auto") -> dict:
+def compare(a: str | Path | Model, b: str | Path | Model, *, method: str = "auto",
+            transient=None) -> dict:
     """Compare two runs: result folders, model files or models.
 
     Parameters
@@ -40,6 +42,10 @@ def compare(a: str | Path | Model, b: str | Path | Model, *, method: str = "auto
         the default error estimate.
     method
         Linear solver for models.
+    transient
+        The function that marches a transient model (``heat2d.transient.run.
+        run_transient``), for models with a ``[transient]`` section (see
+        :func:`~heat2d.compare.load_side`).
 
     Returns
     -------
@@ -49,11 +55,11 @@ def compare(a: str | Path | Model, b: str | Path | Model, *, method: str = "auto
     Raises
     ------
     ModelError
-        A path is missing or not a result folder or model, or the two runs use different
-        units.
+        A path is missing or not a result folder or model, the two runs use different
+        units, or one run is transient and the other steady.
     """
-    return compare_sides(load_side(a, label="A", method=method),
-                         load_side(b, label="B", method=method))
+    return compare_sides(load_side(a, label="A", method=method, transient=transient),
+                         load_side(b, label="B", method=method, transient=transient))
 
 
 def compare_sides(a: Side, b: Side) -> dict:
@@ -71,13 +77,20 @@ def compare_sides(a: Side, b: Side) -> dict:
     ``caution`` (text). An entry is ``a``, ``b``, ``delta`` (b − a), ``error`` (the
     combined ±, see the module docstring; null without estimates) and ``significant``
     (|delta| > error; null without estimates). No value is NaN.
+
+    Two transient runs give the document of
+    :func:`~heat2d.compare.transient.compare_transient` (``"mode": "transient"``); a
+    transient run against a steady one raises :class:`~heat2d.errors.ModelError`.
     """
     sa, sb = a.summary, b.summary
+    kind = check_modes(a, b)
     for key, what in (("length", "length unit"), ("temperature", "temperature unit")):
         ua, ub = sa["units"].get(key), sb["units"].get(key)
         if ua != ub:
             raise ModelError(f"{what} {ub!r} differs from A's {ua!r}: compare runs made in "
                              "the same units", file=b.where)
+    if kind == "transient":
+        return compare_transient(a, b, same_geometry=same_mesh(a, b))
     only_a: list[str] = []
     only_b: list[str] = []
 

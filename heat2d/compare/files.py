@@ -37,7 +37,8 @@ def write_comparison(a: Side, b: Side, doc: dict, out_dir: str | Path) -> list[P
         (folder / "compare.json").write_text(json.dumps(doc, indent=2, allow_nan=False)
                                              + "\n", encoding="utf-8")
         (folder / "compare.txt").write_text(format_comparison(doc) + "\n", encoding="utf-8")
-        plot_compare(a, b, folder / "compare.png", same=doc["same_geometry"])
+        plot_compare(a, b, folder / "compare.png",
+                     same=doc["same_geometry"] and doc.get("same_moment", True))
         return list(FILES)
 
     return write_folder(out_dir, fill, is_output=lambda name: name in FILES)

@@ -189,6 +189,9 @@ def _difference(fig, axes, views, a: Side, b: Side, d: np.ndarray) -> None:
     words = ("no change anywhere" if big == 0 else
              f"from {d.min():+.3g} K to {d.max():+.3g} K; largest change {d[k]:+.3g} K "
              f"at the circle ({x:.4g}, {y:.4g})")
+    moment = a.summary["hot_spot"].get("time_s")
+    if moment is not None:          # transient runs: the fields of their hottest moment
+        words += f", at t = {moment:.4g} s (the hottest moment of both)"
     axes[0].set_title(f"B minus A on the shared mesh: {words}\nA: {_name(a)}\n"
                       f"B: {_name(b)}", fontsize=9, loc="left")
 
@@ -229,7 +232,9 @@ def _side_by_side(fig, full, zoom, box, window, a: Side, b: Side) -> None:
             ax.plot(hs["x"], hs["y"], marker="x", color="black", ms=9, mew=2, gid="marker")
     for ax, side in zip(full, (a, b), strict=True):
         hs = side.summary["hot_spot"]
-        ax.set_title(f"{side.label}: max {hs['temperature']:.1f} °C in {hs['shape']} (×)\n"
+        when = "" if hs.get("time_s") is None else f" at t = {hs['time_s']:.4g} s"
+        ax.set_title(f"{side.label}: max {hs['temperature']:.1f} °C in {hs['shape']} (×)"
+                     f"{when}\n"
                      f"{_name(side)}", fontsize=9, loc="left")
     if filled is not None:
         bar = fig.colorbar(filled, ax=full + zoom, pad=0.02, shrink=0.95,

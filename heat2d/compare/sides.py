@@ -66,7 +66,8 @@ class Side:
         return self.folder or self.model
 
 
-def load_side(item: str | Path | Model, *, label: str, method: str = "auto") -> Side:
+def load_side(item: str | Path | Model, *, label: str, method: str = "auto",
+              transient=None) -> Side:
     """Read a result folder, or solve a model, as one side of a comparison.
 
     Parameters
@@ -80,6 +81,12 @@ def load_side(item: str | Path | Model, *, label: str, method: str = "auto") -> 
         ``"A"`` or ``"B"``: the name of this side in the comparison.
     method
         Linear solver for models (``auto``, ``direct`` or ``multigrid``).
+    transient
+        For a model with a ``[transient]`` section: the function that marches it,
+        ``transient(model, method=...)`` returning a result with ``summary``, ``mesh`` and
+        ``history`` (``heat2d.transient.run.run_transient``; this room does not import the
+        transient room). The side's field is that of the run's hottest moment, as the
+        result folder's ``MODELSTEM.vtu`` holds it.
 
     Returns
     -------
@@ -89,10 +96,11 @@ def load_side(item: str | Path | Model, *, label: str, method: str = "auto") -> 
     ------
     ModelError
         The path does not exist, a folder holds no ``summary.json``, a file in it cannot
-        be read, or the model is invalid; the message names the path.
+        be read, or the model is invalid, or it is transient and no ``transient``
+        function was given; the message names the path.
     """
     if isinstance(item, Model):
-        return _solved(item, label=label, method=method)
+        return _solved(item, label=label, method=method, transient=transient)
     path = Path(item)
     if not path.exists():
         raise ModelError("no such file or folder", file=str(path))
@@ -100,18 +108,29 @@ def load_side(item: str | Path | Model, *, label: str, method: str = "auto") -> 
         return _folder(path, label=label)
     if path.name == "summary.json":
         return _folder(path.parent, label=label)
-    return _solved(load(path), label=label, method=method)
+    return _solved(load(path), label=label, method=method, transient=transient)
 
 
-def _solved(model: Model, *, label: str, method: str) -> Side:
+def _solved(model: Model, *, label: str, method: str, transient=None) -> Side:
     from ..pipeline import run
 
-    result = run(model, method=method)
+    if model.is_transient:
+        if transient is None:
+            raise ModelError(f"{label} is a transient model ([transient]) and no transient "
+                             "solver was given: compare the result folders of 'heat2d run'",
+                             file=model.source)
+        result = transient(model, method=method)
+        history = result.history
+        field = getattr(history, "hottest", None)
+        temperature = history.final if field is None else field
+    else:
+        result = run(model, method=method)
+        temperature = result.temperature
     mesh = result.mesh
     return Side(label=label, folder=None, model=model.source, title=model.title,
                 summary=result.summary, points=np.asarray(mesh.points, dtype=float),
                 triangles=np.asarray(mesh.triangles), temperature=np.asarray(
-                    result.temperature, dtype=float),
+                    temperature, dtype=float),
                 shape_id=np.asarray(mesh.triangle_shape))
 
 

@@ -5,10 +5,9 @@ from __future__ import annotations
 from collections.abc import Collection, Sequence
 
 from .sides import Side
+from .transient import format_transient_comparison
+from .wording import CAUTION
 
-CAUTION = ("Estimates only: confirm against measurements and component ratings; "
-           "product-safety standards, local codes and qualified engineering review take "
-           "precedence over these results.")
 COMBINATION = ("the sum of the two runs' error estimates (a conservative bound on the error "
                "of the difference)")
 """How the combined ± is formed, as the compare text states it."""
@@ -106,7 +105,10 @@ def caution(doc: dict, a: Side, b: Side) -> str:
 
 def format_comparison(doc: dict) -> str:
     """The comparison as a plain-text table (``compare.txt``): shapes, probes, boundaries,
-    °C/W entries, what only one run has, the verdict and the caution."""
+    °C/W entries, what only one run has, the verdict and the caution (two transient runs:
+    :func:`~heat2d.compare.transient.format_transient_comparison`)."""
+    if doc.get("mode") == "transient":
+        return format_transient_comparison(doc)
 
     def name(side: str) -> str:
         about = doc[side]

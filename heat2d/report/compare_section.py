@@ -8,6 +8,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import ModelError
+from .compare_transient import transient_compare_section
 from .generic import cell_text, label
 from .html import definitions, esc, image, para, section, table, tag
 
@@ -99,7 +100,10 @@ def _hot_spot(hs: dict[str, Any]) -> str:
 
 def compare_section(data: dict[str, Any]) -> str:
     """The comparison section: which runs, the verdict in words, the tables of Δ with
-    their combined ± and the difference (or side by side) map."""
+    their combined ± and the difference (or side by side) map (two transient runs:
+    :func:`~heat2d.report.compare_transient.transient_compare_section`)."""
+    if data.get("mode") == "transient":
+        return transient_compare_section(data)
     out = definitions([("A", _side(data, "a")), ("B", _side(data, "b")),
                        ("geometry", "the same: the map shows B − A" if data.get(
                            "same_geometry") else "different: the maps are side by side")])

@@ -15,7 +15,8 @@ from ..model import load
 @dataclass(frozen=True)
 class Material:
     """One material as the report lists it: k along x and y at 25 °C, the k(T) table
-    points of an axis whose k varies, the note (its source), the shapes made of it."""
+    points of an axis whose k varies, the note (its source), the shapes made of it, and
+    its density and specific heat (None when not given; ``..._varies`` for a table)."""
 
     name: str
     kx: float
@@ -23,6 +24,10 @@ class Material:
     note: str
     tables: dict[str, tuple[tuple[float, float], ...]]
     shapes: tuple[str, ...]
+    density: float | None = None
+    specific_heat: float | None = None
+    density_varies: bool = False
+    specific_heat_varies: bool = False
 
 
 @dataclass(frozen=True)
@@ -105,7 +110,8 @@ def model_facts(summary: dict[str, Any], path: Path | None) -> ModelFacts:
     materials = tuple(
         Material(m.name, m.kx, m.ky, m.note,
                  {axis: t for axis, t in (("kx", m.kx_table), ("ky", m.ky_table)) if t},
-                 tuple(used.get(m.name, ())))
+                 tuple(used.get(m.name, ())), m.density, m.specific_heat,
+                 m.density_table is not None, m.specific_heat_table is not None)
         for m in model.materials if m.name in used or not used)
     return ModelFacts(str(path), digest, len(data), str(described), materials,
                       params=dict(model.params))
