@@ -5,17 +5,24 @@ Everything is held as a change from the assembled steady system: F(t) = F + B (P
 temperatures T_d(t) of each fixed node's owning entry. B holds, per powered shape, the
 load vector of 1 W spread over the shape's meshed volume (as the assembly spreads a
 shape's ``power``); L_b = ∫ φ_i dS and M_b = ∫ φ_i φ_j dS over the edges of entry b.
+
+Conductors (:func:`heat2d.fem.joule.conductors`) carry their current schedules here: the
+current of each at t (:meth:`Forcing.currents`, with the left limit of pulses and steps as
+the powers) and the Joule load and power at a temperature field (:meth:`Forcing.joule`,
+:meth:`Forcing.joule_power`), which depend on T; :meth:`Forcing.total_power` given T
+includes the I²R loss. The Joule load is not part of :meth:`Forcing.F`.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
 
 from ..errors import ModelError
+from ..fem.joule import conductors, joule_state
 
 Value = Callable[[float], float]
 
@@ -63,6 +70,9 @@ class Forcing:
     initial_power: np.ndarray          # power of each powered shape just before t = 0
     constant_power: float              # power_density generation, W
     zero: bool = False
+    found: tuple = ()                  # fem.joule.Conductor of each current
+    current_fn: list[Value] = field(default_factory=list)
+    initial_current: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def varies_matrix(self) -> bool:
@@ -73,9 +83,35 @@ class Forcing:
         of a step of that length."""
         return np.array([f(t, left) for f in self.power_fn])
 
-    def total_power(self, t: float, left: float | None = None) -> float:
-        """All generated power at t, W."""
-        return float(self.power(t, left).sum()) + self.constant_power
+    def total_power(self, t: float, left: float | None = None,
+                    T: np.ndarray | None = None) -> float:
+        """All generated power at t, W; with the nodal temperatures T (°C), the Joule
+        loss of the conductors too (it depends on T; without T it is left out)."""
+        joule = self.joule_power(T, t, left) if T is not None else 0.0
+        return float(self.power(t, left).sum()) + self.constant_power + joule
+
+    @property
+    def has_current(self) -> bool:
+        """True when a conductor carries a current (it may be zero at times)."""
+        return bool(self.found)
+
+    def currents(self, t: float, left: float | None = None) -> np.ndarray:
+        """Current of each conductor at t (A), in the order of ``found``; with ``left``,
+        the left limit at the end of a step of that length."""
+        return np.array([f(t, left) for f in self.current_fn], dtype=float)
+
+    def joule(self, T: np.ndarray, t: float, left: float | None = None):
+        """The :class:`~heat2d.fem.joule.JouleState` at nodal temperatures T and the
+        currents at t, or None without conductors."""
+        if not self.found:
+            return None
+        return joule_state(self.system, T, self.found, 1.0, self.currents(t, left))
+
+    def joule_power(self, T: np.ndarray, t: float, left: float | None = None) -> float:
+        """The I²R loss over the depth at (T, t), W: the sum of the nodal Joule loads
+        (as the march's residual holds them)."""
+        st = self.joule(T, t, left)
+        return 0.0 if st is None else float(st.load.sum())
 
     def F(self, t: float, powers: np.ndarray | None = None,
           left: float | None = None) -> np.ndarray:
@@ -129,7 +165,8 @@ def forcing(system, power: Mapping[str, object] | None = None,
     power
         None: each shape's ``schedule`` (if it has one) or its ``power``. A mapping shape
         name -> number (W), Schedule or callable of t: exactly these shapes are powered
-        (every other shape, ``power_density`` ones included, carries none).
+        (every other shape, ``power_density`` ones included, carries none, and no
+        conductor carries a current).
     boundary
         None: the model's boundary values and their schedules. ``"zero"``: every boundary
         value zero (fixed temperatures, ambients, imposed fluxes), for the rise above the
@@ -214,9 +251,23 @@ def forcing(system, power: Mapping[str, object] | None = None,
                     breaks.append(sched[key].breaks)
             conv.append((bc.index, hf, af, L_b, M_b, float(bc.h or 0.0),
                          float(bc.ambient or 0.0)))
+    found, cur_fn, cur_first = (), [], []
+    if power is None and model.has_current:
+        found = conductors(system)
+        specs = {}
+        for item in (*model.shapes, *model.groups):
+            if getattr(item, "current", None) is not None:
+                sched = getattr(item, "current_schedule", None)
+                specs[item.name] = sched if sched is not None else item.current
+        for cond in found:
+            f, br = _value(specs[cond.name])
+            cur_fn.append(f)
+            breaks.append(br)
+            cur_first.append(_initial(specs[cond.name]))
     return Forcing(system=system, powered=powered, power_fn=fns, B=B.tocsr(),
                    base_power=base, F_base=F_base, conv=conv,
                    fixed_owner=owner[system.fixed], fixed_fn=fixed_fn, breaks_list=breaks,
                    initial_power=np.array(first, dtype=float),
                    constant_power=float((F_base if zero else F_gen - B @ base).sum())
-                   if power is None else 0.0, zero=zero)
+                   if power is None else 0.0, zero=zero, found=found, current_fn=cur_fn,
+                   initial_current=np.array(cur_first, dtype=float))

@@ -138,7 +138,7 @@ class NewtonStepper(_Base):
             if stale or self.factor is None:
                 self._refactor(s, T, J)
                 stale = False
-            delta = -self.factor(G)
+            delta = -self.solve(G, s)
             self.iterations += 1
             T[free] += delta
             change = float(np.abs(delta).max()) if len(delta) else 0.0
@@ -151,6 +151,11 @@ class NewtonStepper(_Base):
             previous = change
         raise SolveError(f"Newton did not converge in a time step at t = {t:.6g} s (last "
                          f"change {previous:.3g} K)", file=self.system.model.source)
+
+    def solve(self, G: np.ndarray, s: float) -> np.ndarray:
+        """The Newton correction's solve at stage weight s with the kept factor (free
+        nodes)."""
+        return self.factor(G)
 
     def filter(self, s: float, v: np.ndarray) -> np.ndarray:
         return self.factor(v)
