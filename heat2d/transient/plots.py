@@ -76,9 +76,12 @@ def _figure(width: float, height: float):
 
 
 def _heading(result, what: str) -> str:
+    """What the plot shows, over the model's title (wrapped so it fits the figure)."""
+    import textwrap
+
     model = result.model
     name = model.title or model.stem
-    return f"{name}: {what}"
+    return what[:1].upper() + what[1:] + "\n" + "\n".join(textwrap.wrap(name, 90))
 
 
 def _finish(fig, path) -> None:
@@ -207,7 +210,7 @@ def plot_duty(result, path: str | Path) -> None:
     fig = _figure(8.0 if cols == 1 else 11.0, 1.2 + 4.0 * rows)
     axes = fig.subplots(rows, cols, squeeze=False)
     fig.subplots_adjust(left=0.09 if cols == 1 else 0.07, right=0.74 if cols == 1 else 0.83,
-                        top=1 - 0.55 / (1.2 + 4.0 * rows), bottom=0.75 / (1.2 + 4.0 * rows),
+                        top=1 - 0.75 / (1.2 + 4.0 * rows), bottom=0.75 / (1.2 + 4.0 * rows),
                         wspace=0.25, hspace=0.35)
     cmap = colormaps["viridis"]
     handles = None
