@@ -1,23 +1,28 @@
 """Whole ``heat2d run`` against the bare floor on the same mesh, in one process.
 
-The model is a board cross-section (orthotropic FR4, four copper layers, a
-thermal via, a mounting hole, a powered die on solder, a fixed-temperature end
-and convection everywhere else) whose ``[mesh] size`` is chosen for about
-``--nodes`` mesh nodes.
+The model is the 100 × 100 mm orthotropic plate with an aluminium spreader and a
+5 W part of profile_run.py (``--model board``: a board cross-section, orthotropic
+FR4, four copper layers, a via, a mounting hole, a powered die), its ``[mesh]
+size`` chosen for each node count of the sweep.
 
-Measured in the same run:
+Measured in the same run, at each node count (default 10k, 30k, 100k, 300k, 1M, 2M):
 
 * whole: ``heat2d.cli.main(["run", MODEL, "--out", DIR, "--quiet"])``, wall
   clock from the model file to the last file written (VTU, summary.json,
-  summary.txt, PNG), with heat2d's own stage timings and each writer's time;
-* floor: ``triangle.triangulate`` alone on the same planar straight-line graph
-  with the same switches as heat2d/fem/mesh.py, a minimal vectorized P1 assembly
-  (orthotropic conduction, source, convection edges, Dirichlet elimination),
-  and the fastest of ``spsolve``, ``splu`` and pyamg SA + CG at rtol 1e-10.
+  summary.txt, PNG), with heat2d's own stage and writer timings (summary.json
+  ``timings_s``), and the peak RSS of the process during it (VmHWM, reset before);
+* floor, at 300k and 1M nodes: ``triangle.triangulate`` alone on the same planar
+  straight-line graph with the same switches as heat2d/fem/mesh.py, a minimal
+  vectorized P1 assembly (orthotropic conduction, source, convection edges,
+  Dirichlet elimination), and the fastest of ``spsolve``, ``splu`` (both skipped
+  above 500 000 unknowns unless ``--full-floor``), pyamg SA + CG at rtol 1e-10 and,
+  where pypardiso is installed, MKL PARDISO (SPD).
 
-The figure of merit is whole / floor (target: at most 2.0).
+Printed: whole / floor at 300k and 1M nodes (targets 1.5 and 1.3), time per node
+over the sweep (target: flat within 1.5x) and peak RSS per node at 1M (target
+< 1.5 kB).
 
-    python benchmarks/run_vs_floor.py [--nodes 200000] [--repeat 1] [--blas-threads N]
+    python benchmarks/run_vs_floor.py [--model plate] [--nodes 10000,...] [--floor-at N,...]
 """
 
 from __future__ import annotations
@@ -25,12 +30,12 @@ from __future__ import annotations
 import argparse
 import os
 import resource
+import shutil
 import sys
 import tempfile
 import time
 from pathlib import Path
 
-TARGET_RATIO = 2.0
 BOARD_LENGTH = 30.0
 """Board length in mm; the copper layers set a floor of about 4 700 nodes."""
 
@@ -168,39 +173,23 @@ def peak_rss_mb() -> float:
 # ---------------------------------------------------------------------------- whole run
 
 def whole_run(model_path: Path, out_dir: Path, method: str = "auto") -> dict:
-    """Time ``heat2d run`` in-process; record each writer's time on the side."""
+    """Time ``heat2d run`` in-process; heat2d's own stage and writer times from its
+    summary.json."""
     import json
 
     import heat2d.cli
-    import heat2d.post.writers as writers
 
-    writer_times: dict[str, float] = {}
-    original = dict(writers.WRITERS)
-
-    def timed(name, func):
-        def wrapper(result, path, *args, **kwargs):
-            start = time.perf_counter()
-            func(result, path, *args, **kwargs)
-            writer_times[name] = time.perf_counter() - start
-        return wrapper
-
-    for name, (pattern, func) in original.items():
-        writers.WRITERS[name] = (pattern, timed(name, func))
-    try:
-        start, cpu = time.perf_counter(), time.process_time()
-        argv = ["run", str(model_path), "--out", str(out_dir), "--quiet", *EXTRA]
-        status = heat2d.cli.main(argv + ([] if method == "auto" else ["--method", method]))
-        whole = time.perf_counter() - start
-        cpu = time.process_time() - cpu
-    finally:
-        writers.WRITERS.update(original)
+    start, cpu = time.perf_counter(), time.process_time()
+    argv = ["run", str(model_path), "--out", str(out_dir), "--quiet", *EXTRA]
+    status = heat2d.cli.main(argv + ([] if method == "auto" else ["--method", method]))
+    whole = time.perf_counter() - start
+    cpu = time.process_time() - cpu
     if status != 0:
         raise SystemExit(f"heat2d run exited with status {status}")
     summary = json.loads((out_dir / "summary.json").read_text(encoding="utf-8"))
-    return {"whole": whole, "cpu": cpu, "stages": summary["timings_s"], "writers": writer_times,
+    return {"whole": whole, "cpu": cpu, "stages": summary["timings_s"],
             "nodes": summary["mesh"]["nodes"], "triangles": summary["mesh"]["triangles"],
-            "t_max": summary["temperature"]["max"], "solver": summary["solver"],
-            "probe": summary["probes"].get("junction")}
+            "t_max": summary["temperature"]["max"], "solver": summary["solver"]}
 
 
 # ---------------------------------------------------------------------------- floor
@@ -311,7 +300,22 @@ def floor_solvers():
         ml = pyamg.smoothed_aggregation_solver(A, symmetry="symmetric")
         return ml.solve(b, tol=1e-10, accel="cg", maxiter=500)
 
-    return {"spsolve": spsolve, "splu_mmd_sym": splu_sym, "pyamg_sa_cg": amg_cg}
+    solvers = {"spsolve": spsolve, "splu_mmd_sym": splu_sym, "pyamg_sa_cg": amg_cg}
+    try:
+        import pypardiso
+        import scipy.sparse as sp
+
+        def pardiso_spd(A, b):
+            solver = pypardiso.PyPardisoSolver(mtype=2)
+            upper = sp.triu(A, format="csr")
+            x = solver.solve(upper, b)
+            solver.free_memory(everything=True)
+            return x
+
+        solvers["pardiso_spd"] = pardiso_spd
+    except ImportError:
+        pass
+    return solvers
 
 
 def floor_run(geometry) -> dict:
@@ -328,6 +332,9 @@ def floor_run(geometry) -> dict:
     cpu["assembly"] = time.process_time() - c0
     solves, residual, solutions = {}, {}, {}
     for name, func in floor_solvers().items():
+        if name.startswith(("spsolve", "splu")) and A.shape[0] > SUPERLU_FLOOR_LIMIT \
+                and not FULL_FLOOR[0]:
+            continue
         start, c0 = time.perf_counter(), time.process_time()
         x = solutions[name] = func(A, b)
         solves[name] = time.perf_counter() - start
@@ -341,15 +348,55 @@ def floor_run(geometry) -> dict:
 
 # ---------------------------------------------------------------------------- main
 
+SWEEP_NODES = (10_000, 30_000, 100_000, 300_000, 1_000_000, 2_000_000)
+"""Node counts of the time-per-node sweep; the floor is measured at FLOOR_NODES."""
+FLOOR_NODES = {300_000: 1.5, 1_000_000: 1.3}
+"""Node counts where whole / floor is measured, with the target ratio at each."""
+RSS_NODES, RSS_TARGET_KB = 1_000_000, 1.5
+FLAT_TARGET = 1.5
+SUPERLU_FLOOR_LIMIT = 500_000
+"""Above this many unknowns the floor skips SuperLU (measured 3-5x slower than pyamg and
+PARDISO there, benchmarks/solver_threshold.py) unless --full-floor."""
+
+
+def hwm_mb() -> float:
+    with open("/proc/self/status", encoding="ascii") as f:
+        for line in f:
+            if line.startswith("VmHWM"):
+                return int(line.split()[1]) / 1024
+    return peak_rss_mb()
+
+
+def reset_peak() -> None:
+    try:
+        with open("/proc/self/clear_refs", "w", encoding="ascii") as f:
+            f.write("5")
+    except OSError:
+        pass
+
+
+def model_text(model: str, nodes: int) -> str:
+    if model == "plate":
+        from profile_run import plate_model, plate_size_for
+
+        return plate_model(plate_size_for(nodes))
+    return board_model(size_for_nodes(nodes))
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--nodes", type=int, default=200_000, help="target node count")
-    parser.add_argument("--repeat", type=int, default=1, help="repeats; the minimum is kept")
+    parser.add_argument("--model", default="plate", choices=("plate", "board"),
+                        help="the 100 mm orthotropic plate (profile_run.py) or the board")
+    parser.add_argument("--nodes", default=",".join(str(n) for n in SWEEP_NODES),
+                        help="comma-separated node counts of the time-per-node sweep")
+    parser.add_argument("--floor-at", default=",".join(str(n) for n in FLOOR_NODES),
+                        help="node counts (of --nodes) where the floor is measured too")
     parser.add_argument("--no-estimate", action="store_true",
-                        help="pass --no-estimate to heat2d run (the run without the "
-                             "discretization error estimate)")
+                        help="pass --no-estimate to heat2d run")
     parser.add_argument("--method", default="auto", choices=("auto", "direct", "multigrid"),
                         help="solver passed to heat2d run (default: its own choice)")
+    parser.add_argument("--full-floor", action="store_true",
+                        help="time every floor solver at every size")
     parser.add_argument("--blas-threads", type=int, metavar="N",
                         help="set OPENBLAS/OMP/MKL_NUM_THREADS=N before numpy is loaded")
     args = parser.parse_args(argv)
@@ -359,6 +406,8 @@ def main(argv: list[str] | None = None) -> int:
             parser.error("--blas-threads must be applied before numpy is imported")
         for name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
             os.environ[name] = str(args.blas_threads)
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    FULL_FLOOR[0] = args.full_floor
 
     t0 = time.perf_counter()
     import numpy  # noqa: F401
@@ -369,6 +418,7 @@ def main(argv: list[str] | None = None) -> int:
     import heat2d
     import heat2d.cli  # noqa: F401
     from heat2d.fem.geometry import build_geometry
+    from heat2d.fem.solver import pardiso_available
     t_core = time.perf_counter() - t0
     t0 = time.perf_counter()
     import matplotlib.figure  # noqa: F401
@@ -377,66 +427,85 @@ def main(argv: list[str] | None = None) -> int:
     t_writer_imports = time.perf_counter() - t0
 
     print(f"machine: {os.cpu_count()} cores, load average "
-          f"{', '.join(f'{v:.2f}' for v in os.getloadavg())}; {blas_info()}")
+          f"{', '.join(f'{v:.2f}' for v in os.getloadavg())}; {blas_info()}; "
+          f"PARDISO {'available' if pardiso_available() else 'not installed'}")
     print(f"imports (excluded from both sides): numpy/scipy/pyamg/triangle/heat2d "
-          f"{t_core:.2f} s, meshio+matplotlib {t_writer_imports:.2f} s")
-    t0 = time.perf_counter()
-    size = size_for_nodes(args.nodes)
-    print(f"mesh size {size:.5g} mm for about {args.nodes} nodes "
-          f"(found in {time.perf_counter() - t0:.1f} s)")
-
-    best_whole = best_floor = None
-    rss_whole = 0.0
+          f"{t_core:.2f} s, meshio+matplotlib {t_writer_imports:.2f} s; model {args.model}")
+    sweep = [int(n) for n in args.nodes.split(",") if n.strip()]
+    floor_at = {int(n) for n in args.floor_at.split(",") if n.strip()}
+    rows = []
     with tempfile.TemporaryDirectory(prefix="heat2d-bench-") as tmp:
-        model_path = Path(tmp) / "board.toml"
-        model_path.write_text(board_model(size), encoding="utf-8")
-        geometry = build_geometry(heat2d.load(model_path))
-        for r in range(args.repeat):
-            whole = whole_run(model_path, Path(tmp) / f"out{r}", args.method)
-            rss_whole = max(rss_whole, peak_rss_mb())
-            floor = floor_run(geometry)
-            if best_whole is None or whole["whole"] < best_whole["whole"]:
-                best_whole = whole
-            f_total = floor["mesh"] + floor["assembly"] + floor["solves"][floor["best"]]
-            if best_floor is None or f_total < best_floor["total"]:
-                best_floor = {**floor, "total": f_total}
-            print(f"  repeat {r + 1}: whole {whole['whole']:.2f} s, floor {f_total:.2f} s",
-                  flush=True)
-    rss_all = peak_rss_mb()
-    report(best_whole, best_floor, rss_whole, rss_all, args.repeat)
+        for target in sweep:
+            model_path = Path(tmp) / f"{args.model}.toml"
+            model_path.write_text(model_text(args.model, target), encoding="utf-8")
+            reset_peak()
+            whole = whole_run(model_path, Path(tmp) / f"out{target}", args.method)
+            whole["peak_mb"] = hwm_mb()
+            row = {"target": target, "whole": whole, "floor": None}
+            if target in floor_at:
+                geometry = build_geometry(heat2d.load(model_path))
+                floor = floor_run(geometry)
+                floor["total"] = floor["mesh"] + floor["assembly"] + floor["solves"][floor["best"]]
+                row["floor"] = floor
+                del geometry
+            rows.append(row)
+            report(row)
+            shutil.rmtree(Path(tmp) / f"out{target}", ignore_errors=True)
+    summarize(rows)
     return 0
 
 
-def report(w: dict, f: dict, rss_whole: float, rss_all: float, repeat: int) -> None:
+FULL_FLOOR = [False]
+
+
+def report(row: dict) -> None:
+    w, f = row["whole"], row["floor"]
     stages = w["stages"]
     staged = sum(stages.values())
-    writing = w["whole"] - staged
-    other = writing - sum(w["writers"].values())
-    print(f"\nnodes: heat2d {w['nodes']}, floor {f['nodes']}; triangles {w['triangles']}")
-    print(f"max temperature: heat2d {w['t_max']:.6f} degC, floor {f['t_max']:.6f} degC; "
-          f"heat2d solver {w['solver']['method']} ({w['solver']['iterations']} iterations, "
-          f"residual {w['solver']['relative_residual']:.1e})")
-    print(f"\nheat2d whole run (min of {repeat}): {w['whole']:8.2f} s")
-    for name, t in stages.items():
-        print(f"  {name:<26} {t:8.2f} s")
-    print(f"  {'writing + load + CLI':<26} {writing:8.2f} s   (whole - stages)")
-    for name, t in w["writers"].items():
-        print(f"    writer {name:<19} {t:8.2f} s")
-    print(f"    {'model load, CLI, moves':<26} {other:8.2f} s")
-    print(f"\nfloor (min of {repeat}): {f['total']:8.2f} s")
-    print(f"  {'triangle.triangulate':<26} {f['mesh']:8.2f} s")
-    print(f"  {'P1 assembly + Dirichlet':<26} {f['assembly']:8.2f} s")
-    for name, t in f["solves"].items():
-        mark = "  <- best" if name == f["best"] else ""
-        print(f"  solve {name:<20} {t:8.2f} s   residual {f['residual'][name]:.1e}{mark}")
-    ratio = w["whole"] / f["total"]
-    f_cpu = f["cpu"]["mesh"] + f["cpu"]["assembly"] + f["cpu"][f["best"]]
-    verdict = "meets" if ratio <= TARGET_RATIO else "MISSES"
-    print(f"\nratio whole / floor = {ratio:.2f}  ({verdict} target <= {TARGET_RATIO:.1f})")
-    print(f"  CPU time: whole {w['cpu']:.2f} s, floor {f_cpu:.2f} s, ratio {w['cpu'] / f_cpu:.2f}")
-    print(f"  without writing: {staged / f['total']:.2f}; solve only: "
-          f"{stages.get('solve', 0.0) / f['solves'][f['best']]:.2f}")
-    print(f"peak RSS: {rss_whole:.0f} MB after the heat2d run, {rss_all:.0f} MB at the end")
+    print(f"\n--- {w['nodes']} nodes, {w['triangles']} triangles: whole run {w['whole']:.2f} s "
+          f"({1e6 * w['whole'] / w['nodes']:.1f} us/node), peak RSS {w['peak_mb']:.0f} MB "
+          f"({w['peak_mb'] * 1024 / w['nodes']:.2f} kB/node); solver {w['solver']['method']} "
+          f"({w['solver']['iterations']} iterations)")
+    print("  stages: " + ", ".join(f"{k} {v:.2f}" for k, v in stages.items()))
+    print(f"  timings_s sum {staged:.2f} s; not covered (model load, CLI, folder swap) "
+          f"{w['whole'] - staged:.2f} s")
+    if f is None:
+        return
+    print(f"  floor {f['total']:.2f} s: triangulate {f['mesh']:.2f}, P1 assembly "
+          f"{f['assembly']:.2f}, " + ", ".join(
+              f"{k} {t:.2f}{' (best)' if k == f['best'] else ''}"
+              for k, t in f["solves"].items()))
+    print(f"  max temperature heat2d {w['t_max']:.6f} degC, floor {f['t_max']:.6f} degC")
+    print(f"  ratio whole / floor = {w['whole'] / f['total']:.2f}")
+
+
+def summarize(rows: list[dict]) -> None:
+    print("\n=== summary")
+    print(f"{'nodes':>9} {'whole s':>8} {'us/node':>8} {'peak MB':>8} {'kB/node':>8} "
+          f"{'floor s':>8} {'ratio':>6} {'target':>6}")
+    for row in rows:
+        w, f = row["whole"], row["floor"]
+        target = FLOOR_NODES.get(row["target"])
+        ratio = w["whole"] / f["total"] if f else None
+        print(f"{w['nodes']:>9} {w['whole']:>8.2f} {1e6 * w['whole'] / w['nodes']:>8.1f} "
+              f"{w['peak_mb']:>8.0f} {w['peak_mb'] * 1024 / w['nodes']:>8.2f} "
+              + (f"{f['total']:>8.2f} {ratio:>6.2f} " if f else f"{'':>8} {'':>6} ")
+              + (f"{target:>6.1f}" if target and f else ""))
+    per_node = [r["whole"]["whole"] / r["whole"]["nodes"] for r in rows]
+    if per_node:
+        spread = max(per_node) / min(per_node)
+        print(f"time per node: max / min = {spread:.2f} over {rows[0]['whole']['nodes']} to "
+              f"{rows[-1]['whole']['nodes']} nodes (target <= {FLAT_TARGET})")
+        big = [r for r in rows if r["whole"]["nodes"] >= 90_000]
+        if big:
+            pb = [r["whole"]["whole"] / r["whole"]["nodes"] for r in big]
+            print(f"  from {big[0]['whole']['nodes']} nodes on: max / min = "
+                  f"{max(pb) / min(pb):.2f}")
+    at = [r for r in rows if r["target"] == RSS_NODES]
+    if at:
+        w = at[0]["whole"]
+        print(f"peak RSS at {w['nodes']} nodes: {w['peak_mb'] * 1024 / w['nodes']:.2f} kB/node "
+              f"(target < {RSS_TARGET_KB})")
 
 
 if __name__ == "__main__":

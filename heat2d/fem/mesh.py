@@ -85,20 +85,30 @@ class Mesh:
         return self.cache["min_angle"]
 
     def _min_angle(self) -> float:
-        p = self.points[self.triangles]
-        e = [p[:, (i + 1) % 3] - p[:, i] for i in range(3)]
-        lengths = [np.hypot(v[:, 0], v[:, 1]) for v in e]
-        angles = []
-        for i in range(3):
-            u, v = -e[(i - 1) % 3], e[i]
-            cos = (u * v).sum(axis=1) / (lengths[(i - 1) % 3] * lengths[i])
-            angles.append(np.degrees(np.arccos(np.clip(cos, -1.0, 1.0))))
-        return float(np.min(angles)) if len(p) else 0.0
+        if len(self.triangles) == 0:
+            return 0.0
+        smallest = np.inf
+        for lo in range(0, len(self.triangles), MIN_ANGLE_CHUNK):    # small temporaries
+            p = self.points[self.triangles[lo:lo + MIN_ANGLE_CHUNK]]
+            e = [p[:, (i + 1) % 3] - p[:, i] for i in range(3)]
+            lengths = [np.hypot(v[:, 0], v[:, 1]) for v in e]
+            for i in range(3):
+                u, v = -e[(i - 1) % 3], e[i]
+                cos = (u[:, 0] * v[:, 0] + u[:, 1] * v[:, 1]) / (lengths[(i - 1) % 3]
+                                                                 * lengths[i])
+                # arccos falls: the smallest angle has the largest cosine.
+                smallest = np.minimum(smallest, np.degrees(np.arccos(
+                    np.clip(cos.max(), -1.0, 1.0))))       # NaN (a degenerate triangle) stays
+        return float(smallest)
 
     def __repr__(self) -> str:
         shapes = sorted({self.model.shapes[i].name for i in np.unique(self.triangle_shape)})
         return (f"Mesh({len(self.points)} nodes, {len(self.triangles)} triangles, "
                 f"{len(self.edges)} exposed edges, shapes: {', '.join(shapes)})")
+
+
+MIN_ANGLE_CHUNK = 250_000
+"""Triangles measured at a time by :meth:`Mesh.min_angle`."""
 
 
 def build_mesh(geometry: Geometry) -> Mesh:
@@ -161,7 +171,8 @@ def _triangulate(geometry: Geometry, data: dict, mode: str) -> dict:
 
     model = geometry.model
     try:
-        out = triangle.triangulate(data, f"{mode}pq{model.mesh.min_angle:g}aAQ")
+        # n: each triangle's neighbours (-1 across the outline), for the outline check.
+        out = triangle.triangulate(data, f"{mode}pq{model.mesh.min_angle:g}aAQn")
     except Exception as exc:  # the C mesher reports failures as plain exceptions
         raise MeshError(f"mesher failed: {exc}", file=model.source) from exc
     if "triangles" not in out or len(out["triangles"]) == 0:
@@ -174,7 +185,8 @@ def _finish(geometry: Geometry, out: dict) -> Mesh:
     model = geometry.model
     face_shape = geometry.seeds[:, 2].astype(int)
     points = out["vertices"]
-    tris = out["triangles"].astype(np.int64)
+    # 32-bit node numbers (as the mesher's): half the memory of every index array after.
+    tris = out["triangles"].astype(np.int32 if len(points) < 2**31 - 1 else np.int64)
     face = out["triangle_attributes"][:, 0].round().astype(int)
     shape = face_shape[face]
     material_index = {m.name: i for i, m in enumerate(model.materials)}
@@ -196,7 +208,8 @@ def _finish(geometry: Geometry, out: dict) -> Mesh:
     exposed = geometry.segment_exposed[marker]
     edges, edge_segment = seg[exposed], marker[exposed]
     axis = seg[geometry.segment_axis[marker]]
-    _check_outline(tris, np.vstack([edges, axis]), len(points), model.source)
+    _check_outline(out["triangles"], np.vstack([edges, axis]), len(points), model.source,
+                   out.get("neighbors"))
     on_iface = geometry.segment_interface[marker] >= 0
     iface_edges, iface_id = seg[on_iface], geometry.segment_interface[marker[on_iface]]
     iface_b = iface_edges
@@ -240,10 +253,10 @@ def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.nda
     new_id[split] = n + np.arange(split.sum())
     # Exposed edges: find the triangle each belongs to before renumbering.
     local = np.array([[0, 1], [1, 2], [2, 0]])
-    tri_edges = np.sort(tris[:, local].reshape(-1, 2), axis=1)
+    tri_edges = np.sort(tris[:, local].reshape(-1, 2), axis=1).astype(np.int64)
     keys = tri_edges[:, 0] * n + tri_edges[:, 1]
     order = np.argsort(keys)
-    e_keys = np.sort(edges, axis=1) @ np.array([n, 1])
+    e_keys = np.sort(edges, axis=1).astype(np.int64) @ np.array([n, 1])
     owner = order[np.searchsorted(keys[order], e_keys)]          # flat index tri*3 + local
     # Renumber shape b's side, in the triangles and in the exposed edges it owns.
     move = split[entry_node] & in_b[np.maximum(k, 0), entry_shape]
@@ -258,12 +271,22 @@ def _split_interfaces(model, points: np.ndarray, tris: np.ndarray, shape: np.nda
     return points, tris, edges, b_side
 
 
-def _check_outline(tris: np.ndarray, edges: np.ndarray, n: int, source: str) -> None:
-    """Every edge with one triangle must be an exposed edge, and the reverse."""
-    all_edges = np.sort(tris[:, [0, 1, 1, 2, 2, 0]].reshape(-1, 2), axis=1)
-    keys, counts = np.unique(all_edges[:, 0] * n + all_edges[:, 1], return_counts=True)
-    outline = np.sort(keys[counts == 1])
-    given = np.sort(np.sort(edges, axis=1) @ np.array([n, 1]))
+def _check_outline(tris: np.ndarray, edges: np.ndarray, n: int, source: str,
+                   neighbors: np.ndarray | None = None) -> None:
+    """Every edge with one triangle must be an exposed edge, and the reverse.
+
+    With the mesher's ``neighbors`` (-1 opposite a corner whose edge has no other
+    triangle) the outline is read from them; otherwise edges are counted."""
+    if neighbors is not None:
+        t, k = np.nonzero(neighbors < 0)
+        pairs = np.sort(np.column_stack([tris[t, (k + 1) % 3], tris[t, (k + 2) % 3]]),
+                        axis=1).astype(np.int64)
+        outline = np.sort(pairs[:, 0] * n + pairs[:, 1])
+    else:
+        all_edges = np.sort(tris[:, [0, 1, 1, 2, 2, 0]].reshape(-1, 2), axis=1).astype(np.int64)
+        keys, counts = np.unique(all_edges[:, 0] * n + all_edges[:, 1], return_counts=True)
+        outline = np.sort(keys[counts == 1])
+    given = np.sort(np.sort(edges, axis=1).astype(np.int64) @ np.array([n, 1]))
     if len(outline) != len(given) or not np.array_equal(outline, given):
         raise MeshError(f"mesh outline ({len(outline)} edges) does not match the exposed "
                         f"segments ({len(given)} edges)", file=source)
@@ -280,7 +303,7 @@ def red_refine(mesh: Mesh) -> Mesh:
     n = len(mesh.points)
     tri = mesh.triangles
     local = np.array([[0, 1], [1, 2], [2, 0]])
-    pairs = np.sort(tri[:, local].reshape(-1, 2), axis=1)
+    pairs = np.sort(tri[:, local].reshape(-1, 2), axis=1).astype(np.int64)
     keys, inverse = np.unique(pairs[:, 0] * n + pairs[:, 1], return_inverse=True)
     ends = np.column_stack([keys // n, keys % n])
     mid = n + inverse.reshape(-1, 3)                              # midpoint of edge 01, 12, 20
@@ -290,9 +313,11 @@ def red_refine(mesh: Mesh) -> Mesh:
     ab, bc, ca = mid.T
     children = np.concatenate([np.column_stack(t) for t in
                                ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))])
+    if len(points) < 2**31 - 1:
+        children = children.astype(np.int32)
 
     def midpoint(edges: np.ndarray) -> np.ndarray:
-        e = np.sort(edges, axis=1)
+        e = np.sort(edges, axis=1).astype(np.int64)
         return n + np.searchsorted(keys, e[:, 0] * n + e[:, 1])
 
     def split(edges: np.ndarray) -> np.ndarray:

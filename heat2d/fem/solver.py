@@ -11,6 +11,8 @@ the first solve.
 
 from __future__ import annotations
 
+import contextlib
+import copy
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -26,11 +28,19 @@ if TYPE_CHECKING:
     from .assembly import System
 
 AUTO_DIRECT_LIMIT = 600_000
-"""``auto`` factorizes below this many unknowns and uses multigrid CG above. Measured on a
-2-core machine with board models (benchmarks/solver_threshold.py): the direct solve is
-never slower up to 650 000 unknowns once the extra right-hand sides of the °C/W matrix
-are counted (multigrid CG needs 35–105 iterations where copper meets laminate), and
-takes about 2 GB there; at 1.3 million unknowns multigrid is twice as fast."""
+"""Without MKL PARDISO, ``auto`` factorizes with SuperLU below this many unknowns and uses
+multigrid CG (hierarchy reused for every right-hand side) above. Measured on a 2-core
+machine (benchmarks/solver_threshold.py, solve plus one extra right-hand side for the
+°C/W matrix): on the 100 mm orthotropic plate SuperLU 11.4 s against multigrid 11.7 s
+at 312 000 unknowns, 20.9 s against 20.4 s at 624 000 (crossover), 58 s against 40 s at
+978 000; on the copper-laminate board direct stays faster or tied up to 647 000
+(multigrid CG needs 35-105 iterations there) and multigrid is twice as fast at 1.3
+million. With PARDISO (:func:`pardiso_available`) ``auto`` is direct at every size:
+12.7 s against 40 s at 978 000 unknowns, 6.4 s against 11.7 s at 312 000."""
+PARDISO_ABOVE = 40_000
+"""The direct solver uses PARDISO for systems of at least this many unknowns and SuperLU
+below, where the two tie (loaded 2-core machine, min of 3: 0.06 s against 0.05 s at 9 800
+unknowns, 0.54 s against 0.57 s at 39 000); PARDISO is twice as fast from 78 000 on."""
 ITERATIVE_TOL = 1e-10
 """Relative residual that multigrid CG must reach before its answer is taken."""
 ACCEPT_RESIDUAL = 1e-8
@@ -44,15 +54,115 @@ then carry round-off above the 1e-6 to which the energy balance is otherwise che
 EPS = float(np.finfo(float).eps)
 
 
+def pardiso_available() -> bool:
+    """Whether MKL PARDISO can be used (the optional ``pypardiso`` package, ``pip install
+    heat2d[fast]``); without it the direct solver is SuperLU (scipy)."""
+    global _PARDISO
+    if _PARDISO is None:
+        try:
+            import pypardiso
+
+            if not _TEMPLATE:                   # finds MKL's runtime library or raises
+                _TEMPLATE.append(pypardiso.PyPardisoSolver())
+            _PARDISO = True
+        except (ImportError, OSError, AttributeError):
+            _PARDISO = False
+    return _PARDISO
+
+
+_PARDISO: bool | None = None               # whether PARDISO is used; None: not yet asked
+
+
+def use_pardiso(enabled: bool) -> bool:
+    """Turn PARDISO off (or back on, where installed); returns whether it was in use."""
+    global _PARDISO
+    was, _PARDISO = pardiso_available(), None
+    _PARDISO = bool(enabled) and pardiso_available()
+    return was
+
+
+def choose_method(unknowns: int) -> str:
+    """The linear solver ``auto`` uses for a reduced system of this many unknowns: the
+    direct one with PARDISO (faster than multigrid CG at every size measured), else
+    SuperLU below :data:`AUTO_DIRECT_LIMIT` and multigrid CG from there on."""
+    if pardiso_available() or unknowns < AUTO_DIRECT_LIMIT:
+        return "direct"
+    return "multigrid"
+
+
+def _direct_backend(unknowns: int) -> str:
+    return "pardiso" if unknowns >= PARDISO_ABOVE and pardiso_available() else "superlu"
+
+
+_TEMPLATE: list = []
+"""A constructed PyPardisoSolver: construction looks for MKL's library (a directory walk
+and a subprocess, about 0.15 s), so later solvers are copies with their own handle."""
+
+
+def _new_pardiso(pypardiso, mtype: int):
+    if not _TEMPLATE:
+        _TEMPLATE.append(pypardiso.PyPardisoSolver())
+    solver = copy.copy(_TEMPLATE[0])
+    # Per-solver state (see pypardiso.PyPardisoSolver.__init__): a fresh handle.
+    solver.pt = np.zeros_like(_TEMPLATE[0].pt)
+    solver.iparm = np.zeros_like(_TEMPLATE[0].iparm)
+    solver.perm = np.zeros_like(_TEMPLATE[0].perm)
+    solver.set_matrix_type(mtype)
+    solver.set_phase(13)
+    return solver
+
+
+class _Pardiso:
+    """One MKL PARDISO factorization; its memory (held by MKL) is released when the last
+    reference goes, or by :meth:`release`."""
+
+    def __init__(self, A: sp.csr_matrix, symmetric: bool | None = None) -> None:
+        import pypardiso
+        import scipy.sparse as sp
+
+        if symmetric is None:       # Newton Jacobians may not be: A = Aᵀ to round-off?
+            diff = abs(A - A.T)
+            symmetric = bool(diff.nnz == 0 or diff.max() <= 1e-12 * abs(A).max())
+        self.symmetric = symmetric
+        # Real SPD (mtype 2) from the upper triangle, else real unsymmetric (11).
+        self.A = sp.triu(A, format="csr") if self.symmetric else A.tocsr()
+        self.A.sort_indices()
+        self.solver = _new_pardiso(pypardiso, 2 if self.symmetric else 11)
+        self.solver.size_limit_storage = 0      # it recognises A by a hash, not a copy
+        self.solver.factorize(self.A)
+
+    def __call__(self, b: np.ndarray) -> np.ndarray:
+        return self.solver.solve(self.A, b)
+
+    def release(self) -> None:
+        if self.solver is not None:
+            self.solver.free_memory(everything=True)
+            self.solver = None
+
+    def __del__(self) -> None:
+        with contextlib.suppress(Exception):    # at interpreter shutdown: nothing to free
+            self.release()
+
+
 class Factor:
     """Solves with one matrix, and refactors later matrices of the same pattern reusing
-    the fill-reducing ordering (direct) or the multigrid hierarchy (iterative)."""
+    the fill-reducing ordering (direct) or the multigrid hierarchy (iterative).
 
-    def __init__(self, method: str, A: sp.csr_matrix, *, keep_order: bool = True) -> None:
+    The direct method uses MKL PARDISO where ``pypardiso`` is installed (``backend``
+    ``"pardiso"``), else SuperLU (``"superlu"``). :meth:`release` frees the factorization
+    at once (a later call refactors). ``symmetric=True`` says A is symmetric (the reduced
+    conduction matrix), sparing the check; later matrices (:meth:`update`) are checked."""
+
+    def __init__(self, method: str, A: sp.csr_matrix, *, keep_order: bool = True,
+                 symmetric: bool | None = None) -> None:
         self.method = method
+        self._symmetric_hint = symmetric
         self.keep_order = keep_order
         self.order: np.ndarray | None = None
         self.ml = None
+        self.lu = None
+        self.pardiso: _Pardiso | None = None
+        self.backend = "pyamg" if method != "direct" else _direct_backend(A.shape[0])
         self.iterations = 0
         self.update(A, first=True)
 
@@ -60,12 +170,22 @@ class Factor:
         import scipy.sparse.linalg as spla
 
         self.A = A
+        if self.method == "direct" and self.backend == "pardiso":
+            try:
+                # A new handle: a shallow copy of this factor keeps the earlier one.
+                self.pardiso = _Pardiso(A, self._symmetric_hint if first else None)
+                return
+            except Exception:       # noqa: BLE001 - e.g. a zero pivot: SuperLU pivots
+                self.pardiso = None
+                self.backend = "superlu"
+                first = True
         if self.method == "direct":
+            self.backend = "superlu"
             if first and not self.keep_order:
                 # A single matrix: SuperLU's default column ordering is as fast or faster.
                 self.lu = spla.splu(A.tocsc())
                 self.permuted = False
-            elif first:
+            elif first or self.order is None:
                 # Matrices to come (Newton): a symmetric ordering that later ones reuse.
                 lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A",
                                options={"SymmetricMode": True})
@@ -74,6 +194,7 @@ class Factor:
                 self.permuted = False
             else:
                 q = self.order
+                self.lu = None              # free the old factors before the new ones
                 self.lu = spla.splu(A[q][:, q].tocsc(), permc_spec="NATURAL",
                                     options={"SymmetricMode": True})
                 self.permuted = True
@@ -89,23 +210,46 @@ class Factor:
         else:
             self.symmetric = False
 
-    def __call__(self, b: np.ndarray) -> np.ndarray:
+    def release(self) -> None:
+        """Free the factorization (or hierarchy) now; a later call factorizes again."""
+        if self.pardiso is not None:
+            self.pardiso.release()
+        self.pardiso = self.lu = self.ml = None
+
+    def __call__(self, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
+        """Solve A x = b; ``x0`` is a starting guess for the iterative method (a direct
+        solve ignores it)."""
         if self.method == "direct":
+            self.iterations = 1
+            if self.pardiso is not None and self.pardiso.solver is not None:
+                return self.pardiso(b)
+            if self.lu is None:
+                self.update(self.A, first=True)
+                return self(b)
             if not self.permuted:
-                self.iterations = 1
                 return self.lu.solve(b)
             x = np.empty_like(b)
             x[self.order] = self.lu.solve(b[self.order])
-            self.iterations = 1
             return x
+        if self.ml is None:
+            self.update(self.A, first=True)
         residuals: list[float] = []
         if self.symmetric:
-            x = self.ml.solve(b, tol=ITERATIVE_TOL, accel="cg", maxiter=200,
+            x = self.ml.solve(b, x0=x0, tol=ITERATIVE_TOL, accel="cg", maxiter=200,
                               residuals=residuals)
             self.iterations = max(len(residuals) - 1, 0)
             if _relative(self.A, x, b) > ACCEPT_RESIDUAL:
+                # Slow, not stalled, is common on large meshes: go on from x first (a
+                # factorization there costs minutes and gigabytes without PARDISO).
+                more: list[float] = []
+                x = self.ml.solve(b, x0=x, tol=ITERATIVE_TOL, accel="cg", maxiter=600,
+                                  residuals=more)
+                self.iterations += max(len(more) - 1, 0)
+            if _relative(self.A, x, b) > ACCEPT_RESIDUAL:
                 # Stalled: factorize once and answer this and later right-hand sides directly.
                 self.method = "direct"
+                self.backend = _direct_backend(self.A.shape[0])
+                self.ml = None
                 self.update(self.A, first=True)
                 return self(b)
             return x
@@ -116,7 +260,7 @@ class Factor:
         def tick(_):
             count[0] += 1
 
-        x, _ = spla.gmres(self.A, b, M=self.ml.aspreconditioner(), rtol=ITERATIVE_TOL,
+        x, _ = spla.gmres(self.A, b, x0=x0, M=self.ml.aspreconditioner(), rtol=ITERATIVE_TOL,
                           restart=50, maxiter=20, callback=tick, callback_type="pr_norm")
         self.iterations = count[0]
         return x
@@ -206,9 +350,10 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     Kf = K[free]
     Kff = Kf[:, free].tocsr()
     rhs = system.F[free] - Kf[:, system.fixed] @ system.fixed_value    # F_f − K_fd T_d
+    Kfd = Kf[:, ~free]
+    del Kf                          # a whole matrix's worth: not held while factorizing
 
-    chosen = method if method != "auto" else (
-        "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
+    chosen = method if method != "auto" else choose_method(int(free.sum()))
     notes: list[str] = []
     if initial is not None and system.nonlinear:
         T[free] = initial[free]
@@ -230,7 +375,7 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
         factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
-    kappa, note = conditioning(system, Kf, free)
+    kappa, note = conditioning(system, Kfd, free, Kff.diagonal())
     if note:
         notes.append(note)
     if not np.isfinite(residual) or residual > ACCEPT_RESIDUAL:
@@ -251,8 +396,8 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
                     tuple(notes), tuple(history), factor, free)
 
 
-def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray
-                 ) -> tuple[float, str | None]:
+def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray,
+                 diag: np.ndarray | None = None) -> tuple[float, str | None]:
     """A cheap lower estimate of the condition number of the reduced matrix, and a
     warning when round-off at that condition reaches :data:`ILL_CONDITIONED_ROUNDOFF`.
 
@@ -267,9 +412,12 @@ def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray
     system
         The assembled system.
     Kf
-        Rows of K at the free nodes (all columns).
+        Rows of K at the free nodes: all columns, or (with ``diag``) the columns of the
+        fixed nodes only.
     free
         Mask of the free nodes.
+    diag
+        The diagonal of K_ff, if known (then ``Kf`` needs only the fixed columns).
 
     Returns
     -------
@@ -278,9 +426,10 @@ def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray
     """
     n = int(free.sum())
     h = np.nan_to_num(system.edge["h"])
-    ground = float(np.abs(Kf[:, ~free]).sum()
-                   + (h * system.layout.edge_load.sum(axis=1)).sum())
-    diag = Kf[:, free].diagonal()
+    coupling = Kf if diag is not None else Kf[:, ~free]
+    ground = float(np.abs(coupling).sum() + (h * system.layout.edge_load.sum(axis=1)).sum())
+    if diag is None:
+        diag = Kf[:, free].diagonal()
     top = float(diag.max()) if len(diag) else 0.0
     if ground <= 0 or top <= 0 or not np.isfinite(ground * top):
         return np.inf, None
@@ -298,7 +447,8 @@ def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray
 def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray, keep_order: bool
              ) -> tuple[Factor, np.ndarray, float]:
     try:
-        factor = Factor(name, A, keep_order=keep_order)
+        # The reduced conduction matrix is symmetric by construction.
+        factor = Factor(name, A, keep_order=keep_order, symmetric=True)
         x = factor(b)
     except (RuntimeError, ValueError, np.linalg.LinAlgError) as exc:
         if name == "direct":

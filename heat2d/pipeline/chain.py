@@ -23,9 +23,15 @@ from ..model import Model
 from ..post.results import Result, brief_figures, compute_results
 
 Progress = Callable[[str, str], None]
-"""Called as progress(stage, event) with event "start", then "end" or "failed"."""
+"""Called as progress(stage, event) with event "start", then "end" or "failed"; stages
+follow one another (none is nested in another). The error estimate reports its parts
+as stages named "estimate: ..." (summary.json times them together as "estimate")."""
 
-STAGES = ("geometry", "mesh", "assembly", "solve", "results")
+STAGES = ("geometry", "mesh", "assembly", "solve", "results", "estimate")
+KEEP_FACTOR_LIMIT = 250_000
+"""Above this many nodes the run's factorization (about 1 kB per node) is released once
+the results are computed, before the error estimate and the writers; a later use (a
+variant of a sweep with the same matrix) factorizes again."""
 
 
 def geometry_key(model: Model, refine: float = 1.0) -> tuple:
@@ -113,34 +119,54 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         mesh = stage("mesh", build_mesh, geometry)
         system = stage("assembly", assemble, mesh)
         solution = stage("solve", solve, system, method=method)
-    start = time.perf_counter()
-    result = compute_results(solution, timings=timings, resistances=resistances)
-    result.summary["timings_s"]["results"] = time.perf_counter() - start
+    result = stage("results", compute_results, solution, timings=timings,
+                   resistances=resistances)
+    result.summary["timings_s"]["results"] = timings["results"]
+    if solution.factor is not None and len(solution.temperature) > KEEP_FACTOR_LIMIT:
+        solution.factor.release()
     if estimate:
-        stage("estimate", _estimate, result, model, method, refine)
-        result.summary["timings_s"]["estimate"] = timings["estimate"]
+        start = time.perf_counter()
+        _estimate(result, model, method, refine, stage, timings)
+        result.summary["timings_s"]["estimate"] = time.perf_counter() - start
     return result
 
 
-def _estimate(result: Result, model: Model, method: str, refine: float) -> None:
+def _estimate(result: Result, model: Model, method: str, refine: float, stage,
+              timings: dict[str, float]) -> None:
+    """The error estimate, its parts reported as stages "estimate: ..." one after another."""
     from ..fem.mesh import prolong, red_refine
     from ..post.estimate import REFINED_LIMIT, annotate, estimate, ladder, nested, probe_corrections
 
+    def part(name: str, func, *args, **kwargs):
+        value = stage(f"estimate: {name}", func, *args, **kwargs)
+        del timings[f"estimate: {name}"]      # counted in "estimate" as a whole
+        return value
+
     if len(result.mesh.points) <= REFINED_LIMIT:
-        mesh = red_refine(result.mesh)
-        guess = prolong(result.solution.temperature, result.mesh, mesh)
-        fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
-        annotate(result.summary, nested(result, {**brief_figures(fine),
-                                                 "nodes": len(mesh.points),
-                                                 "probe_corrections": probe_corrections(fine)}))
+        def refined():
+            mesh = red_refine(result.mesh)
+            guess = prolong(result.solution.temperature, result.mesh, mesh)
+            fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
+            return {**brief_figures(fine), "nodes": len(mesh.points),
+                    "probe_corrections": probe_corrections(fine)}
+
+        fine = part("solve on the refined mesh", refined)
+        part("compare", lambda: annotate(result.summary, nested(result, fine)))
         return
     others = []
-    for f in ladder(len(result.mesh.points)):
-        coarse = build_mesh(build_geometry(model, refine=refine * f))
-        solution = solve(assemble(coarse), method=method)
-        others.append({**brief_figures(solution), "nodes": len(coarse.points),
-                       "probe_corrections": probe_corrections(solution)})
-    annotate(result.summary, estimate(result, others))
+    factors = ladder(len(result.mesh.points))
+    for i, f in enumerate(factors):
+        def coarse_figures(f=f):
+            coarse = build_mesh(build_geometry(model, refine=refine * f))
+            solution = solve(assemble(coarse), method=method)
+            figures = {**brief_figures(solution), "nodes": len(coarse.points),
+                       "probe_corrections": probe_corrections(solution)}
+            if solution.factor is not None:
+                solution.factor.release()       # the coarse run's factors: not kept
+            return figures
+
+        others.append(part(f"coarser mesh {i + 1} of {len(factors)}", coarse_figures))
+    part("compare", lambda: annotate(result.summary, estimate(result, others)))
     result.summary["warnings"].append(
         "error estimate from coarser, non-nested meshes (the run is too large to refine "
         "cheaply): it may understate the error; check with --refine")

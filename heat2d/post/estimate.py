@@ -126,11 +126,17 @@ def _gradient_jumps(solution, field: np.ndarray | None = None) -> np.ndarray:
     key = ("recovery groups", hash(mesh.triangle_material.tobytes()))
     if key not in mesh.cache:
         nmat = max(len(mesh.model.materials), 1)
-        keys = tri * nmat + mesh.triangle_material[:, None]
-        unique, inverse = np.unique(keys.ravel(), return_inverse=True)
-        mesh.cache[key] = (inverse.ravel(), len(unique))
+        keys = (tri.astype(np.int64) * nmat + mesh.triangle_material[:, None]).ravel()
+        if len(mesh.points) * nmat <= 4 * len(keys) and mesh.triangle_material.min() >= 0:
+            # (node, material) itself numbers the groups: no sort, some groups empty.
+            mesh.cache[key] = (keys, len(mesh.points) * nmat)
+        else:
+            unique, inverse = np.unique(keys, return_inverse=True)
+            mesh.cache[key] = (inverse.ravel(), len(unique))
     inverse, groups = mesh.cache[key]
     weight = np.bincount(inverse, np.repeat(volume, 3), minlength=groups)
+    if groups > len(inverse) // 3:                 # numbered by key: some groups empty
+        weight[np.bincount(inverse, minlength=groups) == 0] = 1.0     # never read
     recovered = np.column_stack([
         np.bincount(inverse, np.repeat(volume * grad[:, d], 3), minlength=groups)
         for d in range(2)]) / weight[:, None]

@@ -177,10 +177,13 @@ def _field(result: Result, ax, cax, panel: Panel, fig, *, show_mesh: bool, scale
     triangles = mesh.triangles
     if panel.zoom:
         triangles = triangles[mapview.overlaps(mesh, panel.limits())]
-    shown = T[np.unique(triangles)]
+    used = np.zeros(len(T), dtype=bool)
+    used[triangles] = True
+    shown = T[used]
     lo, hi = float(shown.min()), float(shown.max())
+    del used, shown
     lv = mapview.levels(lo, hi, scale=scale)
-    tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], triangles)
+    tri = None
     if len(triangles) > RASTER_ABOVE and not show_mesh:
         # Large meshes: contour a pixel grid sampled from the linear field (exact at the
         # picture's resolution, several times faster than contouring every triangle).
@@ -188,6 +191,7 @@ def _field(result: Result, ax, cax, panel: Panel, fig, *, show_mesh: bool, scale
         args = raster(mesh.points, triangles, T, panel.limits(), nx, ny)
         fill, lines = ax.contourf, ax.contour
     else:
+        tri = mtri.Triangulation(mesh.points[:, 0], mesh.points[:, 1], triangles)
         args, fill, lines = (tri, T), ax.tricontourf, ax.tricontour
     filled = fill(*args, levels=lv.fill, cmap="inferno", extend=lv.extend, zorder=1)
     bar = fig.colorbar(filled, cax=cax, format=lv.fmt, ticks=lv.ticks, extend=lv.extend)
@@ -249,31 +253,55 @@ RASTER_ABOVE = 100_000
 """Panels with more triangles are drawn from a pixel grid."""
 
 
+RASTER_CHUNK = 200_000
+"""Triangles sampled at a time by :func:`raster` (bounds its temporaries)."""
+
+
 def raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
            extent: tuple[float, float, float, float], nx: int, ny: int):
     """The linear field sampled at the centres of an ``nx`` × ``ny`` pixel grid over
     ``extent`` (masked outside the mesh).
 
-    Vectorized over (triangle, pixel) candidates from each triangle's bounding box.
+    Vectorized over (triangle, pixel) candidates: the pixel centres inside each
+    triangle's bounding box (none for most triangles of a mesh finer than the pixels),
+    :data:`RASTER_CHUNK` triangles at a time.
     """
     x0, x1, y0, y1 = extent
     dx, dy = (x1 - x0) / nx, (y1 - y0) / ny
+    grid = np.full((ny, nx), np.nan)
+    for start in range(0, len(triangles), RASTER_CHUNK):
+        _sample(grid, points, triangles[start:start + RASTER_CHUNK], T, x0, y0, dx, dy)
+    gx, gy = np.meshgrid(x0 + (np.arange(nx) + 0.5) * dx, y0 + (np.arange(ny) + 0.5) * dy)
+    return gx, gy, np.ma.masked_invalid(grid)
+
+
+def _sample(grid: np.ndarray, points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
+            x0: float, y0: float, dx: float, dy: float) -> None:
+    """Write into ``grid`` the field of ``triangles`` at the pixel centres they hold."""
+    ny, nx = grid.shape
     p = points[triangles]
-    ix0 = np.clip(np.floor((p[:, :, 0].min(axis=1) - x0) / dx - 0.5).astype(int), 0, nx - 1)
-    ix1 = np.clip(np.ceil((p[:, :, 0].max(axis=1) - x0) / dx - 0.5).astype(int), 0, nx - 1)
-    iy0 = np.clip(np.floor((p[:, :, 1].min(axis=1) - y0) / dy - 0.5).astype(int), 0, ny - 1)
-    iy1 = np.clip(np.ceil((p[:, :, 1].max(axis=1) - y0) / dy - 0.5).astype(int), 0, ny - 1)
+    # Pixel columns (rows) whose centre x0 + (i + ½)dx lies within the bounding box.
+    fx = (p[:, :, 0] - x0) / dx - 0.5
+    fy = (p[:, :, 1] - y0) / dy - 0.5
+    ix0 = np.clip(np.ceil(fx.min(axis=1) - 1e-9), 0, nx).astype(np.int64)
+    ix1 = np.clip(np.floor(fx.max(axis=1) + 1e-9), -1, nx - 1).astype(np.int64)
+    iy0 = np.clip(np.ceil(fy.min(axis=1) - 1e-9), 0, ny).astype(np.int64)
+    iy1 = np.clip(np.floor(fy.max(axis=1) + 1e-9), -1, ny - 1).astype(np.int64)
+    w, h = np.maximum(ix1 - ix0 + 1, 0), np.maximum(iy1 - iy0 + 1, 0)
+    count = w * h
+    keep = np.flatnonzero(count)
+    if len(keep) == 0:
+        return
+    p, ix0, iy0, w, count = p[keep], ix0[keep], iy0[keep], w[keep], count[keep]
     # Per triangle: barycentric l1, l2 and T as affine functions a + b·x + c·y.
     (ax, ay), (bx, by), (cx_, cy_) = (p[:, i].T for i in range(3))
     det = (bx - ax) * (cy_ - ay) - (by - ay) * (cx_ - ax)
     l1 = np.stack([(-ax * (cy_ - ay) + ay * (cx_ - ax)), cy_ - ay, -(cx_ - ax)]) / det
     l2 = np.stack([(-(bx - ax) * ay + (by - ay) * ax), -(by - ay), bx - ax]) / det
-    t0, t1, t2 = T[triangles].T
+    t0, t1, t2 = T[triangles[keep]].T
     tv = t0 * np.stack([1 - l1[0] - l2[0], -l1[1] - l2[1], -l1[2] - l2[2]]) \
         + t1 * l1 + t2 * l2
-    w, h = ix1 - ix0 + 1, iy1 - iy0 + 1
-    count = w * h
-    t = np.repeat(np.arange(len(triangles)), count)
+    t = np.repeat(np.arange(len(keep)), count)
     local = np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
     px = ix0[t] + local % w[t]
     py = iy0[t] + local // w[t]
@@ -282,7 +310,4 @@ def raster(points: np.ndarray, triangles: np.ndarray, T: np.ndarray,
     v = l2[0, t] + l2[1, t] * x + l2[2, t] * y
     inside = (u >= -1e-9) & (v >= -1e-9) & (u + v <= 1 + 1e-9)
     t, x, y = t[inside], x[inside], y[inside]
-    grid = np.full((ny, nx), np.nan)
     grid[py[inside], px[inside]] = tv[0, t] + tv[1, t] * x + tv[2, t] * y
-    gx, gy = np.meshgrid(x0 + (np.arange(nx) + 0.5) * dx, y0 + (np.arange(ny) + 0.5) * dy)
-    return gx, gy, np.ma.masked_invalid(grid)

@@ -112,6 +112,36 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     (per triangle) picks the highest among them, so that a point on a line where the
     field jumps (a contact interface) reads the same side on every mesh.
     """
+    m = len(triangles)
+    worst = np.empty(m)
+    inside_parts, lam_parts = [], []
+    for lo in range(0, m, LOCATE_CHUNK):
+        # Elementwise per triangle, in chunks: the temporaries stay small on large meshes.
+        lam, low, ok = _barycentric(points, triangles[lo:lo + LOCATE_CHUNK], x, y, tol)
+        worst[lo:lo + len(low)] = low
+        inside_parts.append(lo + np.flatnonzero(ok))
+        lam_parts.append(lam[ok])
+    inside = np.concatenate(inside_parts)
+    if len(inside) == 0:
+        best = int(np.argmax(worst))
+        return -1, _barycentric(points, triangles[best:best + 1], x, y, tol)[0][0]
+    lam_inside = np.concatenate(lam_parts)
+    if rank is None:
+        pick = int(np.argmax(worst[inside]))
+    else:
+        pick = int(np.lexsort((worst[inside], rank[inside]))[-1])
+    bary = np.clip(lam_inside[pick], 0.0, None)
+    return int(inside[pick]), bary / bary.sum()
+
+
+LOCATE_CHUNK = 250_000
+"""Triangles tested at a time by :func:`locate`."""
+
+
+def _barycentric(points: np.ndarray, triangles: np.ndarray, x: float, y: float, tol: float
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Barycentric coordinates of (x, y) in each triangle, their smallest, and whether the
+    point is inside to within the geometry tolerance (relative to the triangle size)."""
     p = points[triangles]
     d1, d2 = p[:, 1] - p[:, 0], p[:, 2] - p[:, 0]
     det = d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]
@@ -119,18 +149,8 @@ def locate(points: np.ndarray, triangles: np.ndarray, x: float, y: float,
     l1 = (rx * d2[:, 1] - ry * d2[:, 0]) / det
     l2 = (d1[:, 0] * ry - d1[:, 1] * rx) / det
     lam = np.column_stack([1 - l1 - l2, l1, l2])
-    worst = lam.min(axis=1)
-    # Allow points on an edge to within the geometry tolerance (relative to the triangle size).
-    inside = np.flatnonzero(worst >= -np.maximum(tol / np.sqrt(np.abs(det)), 1e-12))
-    if len(inside) == 0:
-        best = int(np.argmax(worst))
-        return -1, lam[best]
-    if rank is None:
-        best = int(inside[np.argmax(worst[inside])])
-    else:
-        best = int(inside[np.lexsort((worst[inside], rank[inside]))[-1]])
-    bary = np.clip(lam[best], 0.0, None)
-    return best, bary / bary.sum()
+    worst = np.minimum(np.minimum(lam[:, 0], l1), l2)
+    return lam, worst, worst >= -np.maximum(tol / np.sqrt(np.abs(det)), 1e-12)
 
 
 def _onto_outline(mesh, x: float, y: float) -> tuple[float, float] | None:
@@ -225,7 +245,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
 
     # Hot spot: hottest node; its shape is that of the hottest triangle around it.
     node = int(np.argmax(T))
-    around = np.flatnonzero((tri == node).any(axis=1))
+    around = np.flatnonzero((tri[:, 0] == node) | (tri[:, 1] == node) | (tri[:, 2] == node))
     hot_tri = around[np.argmax(t_tri[around].mean(axis=1))]
 
     boundaries, balance, insulated = _boundary_heat(solution)

@@ -14,6 +14,7 @@ import re
 import secrets
 import shutil
 import sys
+import time
 from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -31,22 +32,83 @@ VTU_COMPRESS_LIMIT = 20_000
 """VTU files of meshes with more nodes are written uncompressed (speed over size)."""
 
 
+VTU_CHUNK = 1 << 18
+"""Rows of a derived array (points with z, flux with z, offsets) built at a time."""
+
+
 def write_vtu(result: Result, path: Path, **options) -> None:
     """The mesh with point data ``temperature`` and cell data ``heat_flux``, ``shape_id``,
     ``material_id`` (ids index ``summary["ids"]``)."""
+    mesh = result.mesh
+    if len(mesh.points) > VTU_COMPRESS_LIMIT:
+        # zlib costs seconds on large meshes for a 2-3x smaller file: large meshes go plain,
+        # streamed to the file without a copy of any whole field.
+        _write_vtu_raw(result, path)
+        return
     import meshio
 
-    mesh = result.mesh
     points = np.column_stack([mesh.points, np.zeros(len(mesh.points))])
-    # zlib costs seconds on large meshes for a 2-3x smaller file: large meshes go plain.
-    compression = "zlib" if len(points) <= VTU_COMPRESS_LIMIT else None
     flux = np.column_stack([result.heat_flux, np.zeros(len(result.heat_flux))])
     meshio.Mesh(
         points, [("triangle", mesh.triangles)],
         point_data={"temperature": result.temperature},
         cell_data={"heat_flux": [flux], "shape_id": [mesh.triangle_shape.astype(np.int32)],
                    "material_id": [mesh.triangle_material.astype(np.int32)]},
-    ).write(path, file_format="vtu", compression=compression)
+    ).write(path, file_format="vtu", compression="zlib")
+
+
+_VTK_TYPES = {np.dtype("<f8"): "Float64", np.dtype("<i8"): "Int64", np.dtype("<i4"): "Int32",
+              np.dtype("u1"): "UInt8"}
+
+
+def _write_vtu_raw(result: Result, path: Path) -> None:
+    """VTK XML unstructured grid with raw appended data (UInt64 block headers), each
+    array written in chunks of :data:`VTU_CHUNK` rows."""
+    mesh = result.mesh
+    n, m = len(mesh.points), len(mesh.triangles)
+    tri = mesh.triangles
+    tri_type = np.dtype("<i8") if tri.dtype.itemsize == 8 else np.dtype("<i4")
+
+    def pad_z(a):
+        return lambda lo, hi: np.column_stack([a[lo:hi], np.zeros(hi - lo)])
+
+    # name, section, dtype, components, rows, rows lo..hi as an array of that dtype
+    arrays = [
+        ("Points", "Points", np.dtype("<f8"), 3, n, pad_z(mesh.points)),
+        ("connectivity", "Cells", tri_type, 1, 3 * m, lambda lo, hi: tri.reshape(-1)[lo:hi]),
+        ("offsets", "Cells", np.dtype("<i8"), 1, m,
+         lambda lo, hi: 3 * np.arange(lo + 1, hi + 1, dtype=np.int64)),
+        ("types", "Cells", np.dtype("u1"), 1, m, lambda lo, hi: np.full(hi - lo, 5, np.uint8)),
+        ("temperature", "PointData", np.dtype("<f8"), 1, n,
+         lambda lo, hi: result.temperature[lo:hi]),
+        ("heat_flux", "CellData", np.dtype("<f8"), 3, m, pad_z(result.heat_flux)),
+        ("shape_id", "CellData", np.dtype("<i4"), 1, m,
+         lambda lo, hi: mesh.triangle_shape[lo:hi]),
+        ("material_id", "CellData", np.dtype("<i4"), 1, m,
+         lambda lo, hi: mesh.triangle_material[lo:hi]),
+    ]
+    offset = 0
+    tags: dict[str, list[str]] = {"Points": [], "Cells": [], "PointData": [], "CellData": []}
+    for name, section, dtype, comps, rows, _ in arrays:
+        components = f' NumberOfComponents="{comps}"' if comps > 1 else ""
+        tags[section].append(f'<DataArray type="{_VTK_TYPES[dtype]}" Name="{name}"'
+                             f'{components} format="appended" offset="{offset}"/>')
+        offset += 8 + rows * comps * dtype.itemsize
+    head = ['<?xml version="1.0"?>',
+            '<VTKFile type="UnstructuredGrid" version="1.0" byte_order="LittleEndian" '
+            'header_type="UInt64">', "<UnstructuredGrid>",
+            f'<Piece NumberOfPoints="{n}" NumberOfCells="{m}">']
+    for section, lines in tags.items():
+        head += [f"<{section}>", *lines, f"</{section}>"]
+    head += ["</Piece>", "</UnstructuredGrid>", '<AppendedData encoding="raw">', "_"]
+    with open(path, "wb") as f:
+        f.write("\n".join(head).encode("ascii"))
+        for _, _, dtype, comps, rows, part in arrays:
+            f.write(np.uint64(rows * comps * dtype.itemsize).astype("<u8").tobytes())
+            for lo in range(0, rows, VTU_CHUNK):
+                f.write(np.ascontiguousarray(part(lo, min(lo + VTU_CHUNK, rows)),
+                                             dtype=dtype).tobytes())
+        f.write(b"\n</AppendedData>\n</VTKFile>\n")
 
 
 def write_json(result: Result, path: Path, **options) -> None:
@@ -119,11 +181,17 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
     stem = stem or result.model.stem
 
     def fill(folder: Path) -> list[str]:
+        timings = result.summary.setdefault("timings_s", {})
         files = []
         for name in names:
             pattern, func = WRITERS[name]
+            start = time.perf_counter()
             func(result, folder / pattern.format(stem=stem), **options)
+            timings[f"write_{name}"] = time.perf_counter() - start
             files.append(pattern.format(stem=stem))
+        if "json" in names:         # again, now with every writer's time (a few kB)
+            pattern, func = WRITERS["json"]
+            func(result, folder / pattern.format(stem=stem), **options)
         return files
 
     return write_folder(out_dir, fill)
