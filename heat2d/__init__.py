@@ -25,6 +25,7 @@ from .errors import (  # noqa: E402
     ModelError,
     NoHeatPathError,
     SolveError,
+    ThermalRunawayError,
 )
 from .model import Model, from_dict, load, parse  # noqa: E402
 from .version import __version__  # noqa: E402
@@ -64,5 +65,5 @@ def __getattr__(name: str):
 __all__ = [
     "GeometryError", "Heat2dError", "MeshError", "Model", "ModelError", "NoHeatPathError",
     "Result",
-    "SolveError", "__version__", "from_dict", "load", "parse", "run", "solve",
+    "SolveError", "ThermalRunawayError", "__version__", "from_dict", "load", "parse", "run", "solve",
 ]

@@ -61,3 +61,14 @@ class MeshError(Heat2dError):
 
 class SolveError(Heat2dError):
     """The linear solve failed or did not reach its tolerance."""
+
+
+class ThermalRunawayError(SolveError):
+    """No steady state exists: a conductor's I²R loss, rising with its resistivity, grows
+    faster than its heat can leave. ``onset_a`` is the current (A) where it sets in,
+    ``conductor`` the conductor's name."""
+
+    def __init__(self, reason: str, *, onset_a: float, conductor: str, **where) -> None:
+        self.onset_a = onset_a
+        self.conductor = conductor
+        super().__init__(reason, **where)

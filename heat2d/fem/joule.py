@@ -32,7 +32,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..errors import ModelError, SolveError
+from ..errors import ModelError, SolveError, ThermalRunawayError
 from ..model.schema import RESISTIVITY_FLOOR
 from .assembly import System
 from .solver import AUTO_DIRECT_LIMIT, METHODS, Factor, Solution, solve
@@ -358,11 +358,9 @@ def solve_joule(system: System, *, method: str = "auto", initial: np.ndarray | N
     if not attempt.ok:
         _runaway(system, found, free, chosen, tol, max_iterations, attempt)
     st = joule_state(system, attempt.T, found)
-    depth = system.model.depth_m
-    notes = (f"Joule heating: {len(found)} conductor(s), loss "
-             f"{st.loss_per_m.sum() * depth:.6g} W over the depth",)
+    # The loss is reported per conductor (conductor_figures), not as a note.
     return Solution(with_joule(system, attempt.T, st), attempt.T, chosen, attempt.iterations,
-                    attempt.residual, time.perf_counter() - start, notes, tuple(attempt.history),
+                    attempt.residual, time.perf_counter() - start, (), tuple(attempt.history),
                     attempt.tangent, free)
 
 
@@ -430,20 +428,17 @@ def _runaway(system: System, found, free, chosen, tol, max_iterations, failed: _
     hottest = int(np.argmax([t_lo[system.mesh.triangles[c.triangles]].max() for c in found]))
     c = found[hottest]
     onset = 0.5 * (lo + hi) * abs(c.current)
-    raise SolveError(
+    raise ThermalRunawayError(
         f"thermal runaway: no steady state above about {onset:.4g} A in conductor "
         f"{c.name} (onset between {lo * abs(c.current):.4g} and {hi * abs(c.current):.4g} A"
         f"; {abs(c.current):.4g} A asked; lumped estimate "
         f"{frac[hottest] * abs(c.current):.4g} A)", file=system.model.source,
-        entry=f"conductor \"{c.name}\"")
+        entry=f"conductor \"{c.name}\"", onset_a=float(onset), conductor=c.name)
 
 
 def runaway_onset(error: SolveError) -> float | None:
-    """The onset current (A) named in a runaway error, or None."""
-    import re
-
-    hit = re.search(r"no steady state above about ([0-9.eE+-]+) A", error.reason)
-    return float(hit.group(1)) if hit else None
+    """The onset current (A) of a runaway error, or None for another failure."""
+    return error.onset_a if isinstance(error, ThermalRunawayError) else None
 
 
 def conductor_figures(system: System, T: np.ndarray) -> dict[str, dict]:

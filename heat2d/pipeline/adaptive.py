@@ -18,6 +18,7 @@ import numpy as np
 from ..errors import ModelError
 from ..fem.assembly import assemble
 from ..fem.geometry import Geometry
+from ..fem.joule import solve_joule
 from ..fem.mesh import build_mesh, prolong, red_refine, refine_mesh
 from ..fem.solver import solve
 from ..post.estimate import annotate, nested, probe_corrections, recovery_indicator
@@ -79,11 +80,13 @@ def adapt(geometry: Geometry, *, method: str = "auto", resistances: bool = True
     check_budget(mesh)
     steps: list[dict[str, Any]] = []
     while True:
-        solution = solve(assemble(mesh), method=method)
+        solution = (solve_joule if model.has_current else solve)(assemble(mesh), method=method)
         result = compute_results(solution, resistances=False)
         refined = red_refine(mesh)
-        fine = solve(assemble(refined), method=method,
-                     initial=prolong(solution.temperature, mesh, refined), newton_steps=1)
+        guess = prolong(solution.temperature, mesh, refined)
+        fine = (solve_joule(assemble(refined), method=method, initial=guess)
+                if model.has_current else
+                solve(assemble(refined), method=method, initial=guess, newton_steps=1))
         errors = nested(result, {**brief_figures(fine), "nodes": len(refined.points),
                                   "probe_corrections": probe_corrections(fine)})
         goals = targets(result)

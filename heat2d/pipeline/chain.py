@@ -17,6 +17,7 @@ import numpy as np
 from ..fem.assembly import assemble
 from ..fem.budget import check_outlines
 from ..fem.geometry import build_geometry
+from ..fem.joule import solve_joule
 from ..fem.mesh import build_mesh
 from ..fem.solver import solve
 from ..model import Model
@@ -104,9 +105,13 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         # Equal up to the order of summation (COO sum against pattern refill).
         same = (system.K.nnz == old.system.K.nnz
                 and np.allclose(system.K.data, old.system.K.data, rtol=1e-13, atol=0)
-                and np.array_equal(system.fixed, old.system.fixed) and not system.nonlinear)
-        solution = stage("solve", solve, system, method=method,
-                         factor=old.factor if same else None)
+                and np.array_equal(system.fixed, old.system.fixed) and not system.nonlinear
+                and not model.has_current)
+        if model.has_current:
+            solution = stage("solve", solve_joule, system, method=method)
+        else:
+            solution = stage("solve", solve, system, method=method,
+                             factor=old.factor if same else None)
     elif model.adaptive and adaptive:
         from .adaptive import adapt
 
@@ -118,7 +123,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         geometry = stage("geometry", build_geometry, model, refine=refine)
         mesh = stage("mesh", build_mesh, geometry)
         system = stage("assembly", assemble, mesh)
-        solution = stage("solve", solve, system, method=method)
+        solution = stage("solve", solver_for(model), system, method=method)
     result = stage("results", compute_results, solution, timings=timings,
                    resistances=resistances)
     result.summary["timings_s"]["results"] = timings["results"]
@@ -129,6 +134,12 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
         _estimate(result, model, method, refine, stage, timings)
         result.summary["timings_s"]["estimate"] = time.perf_counter() - start
     return result
+
+
+def solver_for(model: Model):
+    """The solve stage of a model: with the Joule heating of its conductors when any
+    carries a current (:func:`heat2d.fem.joule.solve_joule`), else the heat balance alone."""
+    return solve_joule if model.has_current else solve
 
 
 def _estimate(result: Result, model: Model, method: str, refine: float, stage,
@@ -146,7 +157,9 @@ def _estimate(result: Result, model: Model, method: str, refine: float, stage,
         def refined():
             mesh = red_refine(result.mesh)
             guess = prolong(result.solution.temperature, result.mesh, mesh)
-            fine = solve(assemble(mesh), method=method, initial=guess, newton_steps=1)
+            fine = (solve_joule(assemble(mesh), method=method, initial=guess)
+                    if model.has_current else
+                    solve(assemble(mesh), method=method, initial=guess, newton_steps=1))
             return {**brief_figures(fine), "nodes": len(mesh.points),
                     "probe_corrections": probe_corrections(fine)}
 
@@ -158,7 +171,7 @@ def _estimate(result: Result, model: Model, method: str, refine: float, stage,
     for i, f in enumerate(factors):
         def coarse_figures(f=f):
             coarse = build_mesh(build_geometry(model, refine=refine * f))
-            solution = solve(assemble(coarse), method=method)
+            solution = solver_for(model)(assemble(coarse), method=method)
             figures = {**brief_figures(solution), "nodes": len(coarse.points),
                        "probe_corrections": probe_corrections(solution)}
             if solution.factor is not None:

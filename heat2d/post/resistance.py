@@ -110,7 +110,9 @@ def resistances(solution) -> tuple[dict[str, Any] | None, dict[str, Any]]:
     node_h = system.node_h(T)
     tri = mesh.triangles
     is_fixed = ~np.isnan(system.edge["temperature"])
-    basis = "tangent at the solved state" if system.nonlinear else "linear"
+    feedback = system.model.has_current and any(
+        m.temperature_coefficient for m in system.model.materials if m.conducts)
+    basis = ("tangent at the solved state" if system.nonlinear or feedback else "linear")
     mean_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
     max_rise: dict[str, dict[str, float]] = {r.name: {} for r in rows}
     share: dict[str, dict[str, float]] = {}

@@ -28,6 +28,10 @@ IMPLAUSIBLE_C = 1500.0
 """A field hotter than this (°C) is past the melting point of copper (1085 °C) and of
 every laminate, solder and silicon (1414 °C) (handbook values, from memory): a slip in a
 power or unit, not a result."""
+CONDUCTOR_CAUTION = (
+    "A 2-D section takes each conductor as long and straight: no end effects, no AC skin "
+    "effect, no current crowding at vias or connectors; the current ratings of the board "
+    "standards and the fusing of real parts take precedence.")
 UNTRUSTED_BALANCE = 1e-3
 """An ill-conditioned system whose energy balance is open by more than this is refused as
 input: its heat flows are round-off, not results."""
@@ -330,8 +334,12 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                 "material": [m.name for m in model.materials]},
         "timings_s": dict(timings or {}),
         "warnings": warnings,
-        "caution": CAUTION,
+        "caution": CAUTION + (" " + CONDUCTOR_CAUTION if model.has_current else ""),
     }
+    if model.has_current:
+        from ..fem.joule import conductor_figures
+
+        summary["conductors"] = conductor_figures(system, T)
     check_finite({"summary": summary, "heat_flux": float(np.abs(flux).max(initial=0.0))},
                  model.source)
     return Result(solution=solution, heat_flux=flux, summary=summary)

@@ -66,6 +66,7 @@ def format_summary(summary: dict) -> str:
         for name, itf in summary["interfaces"].items():
             lines.append(f"{name:<20} {itf['heat_w']:>11.4g} {itf['mean_jump']:>12.4g} "
                          f"{itf['resistance']:>10.3g}")
+    lines += _conductor_lines(summary.get("conductors", {}), summary)
     lines += _cut_lines(summary.get("cuts", {}))
     lines += _package_lines(summary.get("package", {}), summary["boundaries"])
     res = summary.get("thermal_resistance")
@@ -175,4 +176,24 @@ def _package_lines(package: dict, boundaries: dict) -> list[str]:
                          f"{b['heat_from_powered_shapes_w']:.4g} W from the powered shapes "
                          f"{'+' if rest >= 0 else '−'} {abs(rest):.4g} W "
                          + ("driven by the boundary values" if linear else "remainder"))
+    return lines
+
+
+def _conductor_lines(conductors: dict, summary: dict) -> list[str]:
+    """Per conductor: current, resistance per metre hot and cold, I²R loss, voltage drop
+    over the model's depth, mean and max temperature and the rise."""
+    if not conductors:
+        return []
+    depth = summary["units"]["powers_and_heat_flows_for"]
+    lines = ["", f"{'conductor':<16} {'A':>8} {'mΩ/m hot':>10} {'mΩ/m cold':>10} "
+                 f"{'loss W':>9} {'drop mV':>9} {'mean °C':>8} {'max °C':>8} {'rise K':>7}"]
+    for name, c in conductors.items():
+        lines.append(f"{name:<16} {c['current_a']:>8.4g} "
+                     f"{1e3 * c['resistance_ohm_per_m']:>10.4g} "
+                     f"{1e3 * c['cold_resistance_ohm_per_m']:>10.4g} {c['loss_w']:>9.4g} "
+                     f"{1e3 * c['voltage_v']:>9.4g} {c['mean_c']:>8.2f} {c['max_c']:>8.2f} "
+                     f"{c['max_rise_k']:>7.2f}")
+    ambient = next(iter(conductors.values()))["ambient_c"]
+    lines.append(f"  (loss and voltage drop for {depth}; cold: the conductor at "
+                 f"{ambient:g} °C; rise over {ambient:g} °C)")
     return lines

@@ -68,6 +68,9 @@ def _metrics(summary: dict[str, Any]) -> dict[str, Any]:
         row[f"heat_out_w:{name}"] = b["heat_out_w"]
     for name, lim in summary["limits"].items():
         row[f"margin_k:{name}"] = lim["margin"]
+    for name, c in summary.get("conductors", {}).items():
+        row[f"conductor_max_rise_k:{name}"] = c["max_rise_k"]
+        row[f"conductor_loss_w:{name}"] = c["loss_w"]
     transient = summary.get("transient")
     if transient:
         # Powered shapes: the peak over the run, the periodic peak of a pulse train, and

@@ -46,7 +46,8 @@ FIXED_COLUMNS = ("max_temperature_c", "max_temperature_error_k", "hot_spot_shape
 TAIL_COLUMNS = ("solve_time_s", "status", "error")
 COLUMN_GROUPS = (("probe:", "probes"), ("heat_out_w:", "boundaries"), ("margin_k:", "limits"),
                  ("peak_c:", "transient peaks"), ("periodic_peak_c:", "transient periodic"),
-                 ("zth_k_per_w:", "transient zth"))
+                 ("zth_k_per_w:", "transient zth"), ("conductor_max_rise_k:", "conductors"),
+                 ("conductor_loss_w:", "conductors"))
 """Per-name columns: prefix and the summary section they come from (the transient ones
 only for a model with [transient])."""
 TEXT_COLUMNS = ("variant", "hot_spot_shape", "status", "error")
