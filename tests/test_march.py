@@ -69,15 +69,20 @@ def test_slab_flux_face_rise_matches_carslaw_jaeger(flux_slab):
     ref = np.array([0.11284, 0.35682, 0.70179, 0.93126, 0.99951])
     t = fo * L**2 / ALPHA
     times = np.unique(np.concatenate([np.geomspace(t[0] / 10, t[-1], 30), t]))
-    hist = march(flux_slab, times=times, initial=0.0, tolerance=1e-3)
+    hist = march(flux_slab, times=times, initial=0.0, tolerance=1e-3, land_reports=True)
     rise = hist.shape_max[1:, 0][np.searchsorted(times, t)]
     z_over_r = rise / (q * A) / (L / (K * A))
     assert np.abs(z_over_r / ref - 1).max() < 0.01          # measured: 4.0e-4
-    # the same with steps free of the report times (figures interpolated inside steps)
-    free = march(flux_slab, times=times, initial=0.0, tolerance=1e-3, land_reports=False)
+    # the default: steps free of the report times (figures interpolated inside steps)
+    free = march(flux_slab, times=times, initial=0.0, tolerance=1e-3)
     rise_free = free.shape_max[1:, 0][np.searchsorted(times, t)]
     assert np.abs(rise_free / (q * A) / (L / (K * A)) / ref - 1).max() < 0.01
     assert len(free.steps) < len(hist.steps)
+    # the hottest moment: the end (the face only heats), its field the final one, its
+    # largest value the heated face's rise at Fo = 3 (0.99951 qL/k)
+    assert free.hottest_time == times[-1]
+    assert np.array_equal(free.hottest, free.final)
+    assert free.hottest.max() / (q * A) / (L / (K * A)) == pytest.approx(ref[-1], rel=0.01)
     # the heated face is the hottest point; the heat through the held face lags
     assert hist.heat_out[-1, 0] == pytest.approx(-q * A, rel=1e-9)   # flux in, negative out
     assert hist.heat_out[-1, 1] == pytest.approx(q * A * 0.99, rel=0.01)
@@ -259,6 +264,36 @@ def test_energy_balance_over_a_pulsed_run():
     assert e["stored_j"] + e["out_j"] == pytest.approx(e["input_j"], rel=1e-8)
     # the pulses lift the slab; the steady start has only the held face and air
     assert hist.peaks()["slab"]["max"] > hist.shape_max[0, 0]
+    # the hottest moment is the end of a pulse (heating only while one is on), and its
+    # field holds the run's largest step-end temperature
+    assert min(abs(hist.hottest_time - (0.5 + 2 * j)) for j in range(3)) < 1e-12
+    assert hist.hottest.max() == pytest.approx(hist.peaks()["slab"]["max"], abs=1e-12)
+
+
+def test_report_times_a_hair_from_a_pulse_edge_are_one_target():
+    # The fifth pulse ends at 0.01 + 4·0.05 = 0.21000000000000002 in binary floating point
+    # (IEEE 754 double), a report and snapshot time at 0.21: one landing, no step of
+    # 1e-17 s; the first law still holds (∫P dt = 6 W · 0.01 s · 5 pulses).
+    from heat2d.transient.march import merge_times
+
+    edge = 0.01 + 4 * 0.05
+    assert edge != 0.21
+    assert np.array_equal(merge_times([0.21, edge, 0.3], prefer=[edge]), [edge, 0.3])
+    model = slab(length=10, height=2, size=0.5, left="h = 50\nambient = 20",
+                 right="temperature = 30",
+                 shape_extra="power_pulse = { power = 6, width = 0.01, period = 0.05, "
+                             "count = 5 }",
+                 extra="[transient]\nend = 1\n")
+    system = system_of(model)
+    times = np.union1d(np.geomspace(1e-5, 1, 51), [0.21])
+    for land in (True, False):
+        hist = march(system, times=times, initial="steady", store_at=[0.21],
+                     land_reports=land)
+        assert (hist.steps / hist.step_ends).min() > 1e-6
+        assert len(hist.times) == len(times) + 1
+        assert hist.snapshot_times[0] == pytest.approx(0.21, rel=1e-15)
+        assert hist.energy["input_j"] == pytest.approx(6 * 0.01 * 5, rel=1e-12)
+        assert hist.energy["relative_error"] < 1e-8
 
 
 def test_nonlinear_step_response_reaches_the_nonlinear_steady_state():
@@ -369,3 +404,23 @@ def test_unit_step_rise_tends_to_the_steady_self_resistance():
     # within the time-step tolerance, 0.01 K (measured: 2.2e-5 K above the limit once)
     assert np.diff(z).min() > -0.01
     assert hist.energy["input_j"] == pytest.approx(400.0, rel=1e-12)
+    # a second march sharing the first's factorizations (FactorCache) makes none and
+    # gives the same curve (to the CG tolerance of its off-rung steps)
+    from heat2d.transient.linear import FactorCache
+
+    cache = FactorCache()
+    first = march(result.solution.system, times=np.geomspace(1e-3, 400, 30), initial=0.0,
+                  power={"slab": 1.0}, boundary="zero", cache=cache)
+    again = march(result.solution.system, times=np.geomspace(1e-3, 400, 30), initial=0.0,
+                  power={"slab": 1.0}, boundary="zero", cache=cache)
+    assert again.stats["factorizations"] == 0 < first.stats["factorizations"]
+    assert np.abs(again.shape_max - z[:, None]).max() < 1e-6 * r
+    # a cache of 3 factorizations keeps the first rung for the next march's sweep (the
+    # least recently used ones would be exactly those it needs first)
+    small = FactorCache(keep=3)
+    first = march(result.solution.system, times=np.geomspace(1e-3, 400, 30), initial=0.0,
+                  power={"slab": 1.0}, boundary="zero", cache=small)
+    again = march(result.solution.system, times=np.geomspace(1e-3, 400, 30), initial=0.0,
+                  power={"slab": 1.0}, boundary="zero", cache=small)
+    assert first.stats["factorizations"] > 3
+    assert again.stats["factorizations"] < first.stats["factorizations"]

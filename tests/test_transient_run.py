@@ -32,7 +32,7 @@ def strip(layers: list[tuple[float, float, float]], *, extra: str = "", size: fl
     (its resistance is 2e-6 of the slab's, its capacity 1e-7 of it)."""
     text = [f'[model]\nlength_unit = "mm"\ndepth = {DEPTH}\n']
     y = 0.0
-    for i, (t, k, rho_c) in enumerate(layers):
+    for i, (_, k, rho_c) in enumerate(layers):
         text.append(f"[materials.m{i}]\nk = {k}\ndensity = 1000\nspecific_heat = "
                     f"{rho_c / 1000}\n")
     text.append("[materials.heater]\nk = 1000\ndensity = 1\nspecific_heat = 50\n")
@@ -96,6 +96,12 @@ def test_the_run_records_its_energy_and_the_steady_limit(slab):
                           estimate=False)
     assert slab.history.shape_max[-1, slab.model.shape("heater").index] == pytest.approx(
         steady.summary["shapes"]["heater"]["max"], abs=5e-5)
+    # the hottest moment of a heating-up run comes once the rise is within 2e-5 K of the
+    # steady one (Fo > 5: the series' first term 8/π² exp(−π²Fo/4) of 5 K; later moments
+    # differ by the time-step error alone)
+    hot = slab.summary["temperature"]
+    assert hot["time_s"] > 5.0
+    assert hot["max"] == pytest.approx(steady.summary["temperature"]["max"], abs=5e-5)
 
 
 def test_two_layer_stack_against_the_transmission_matrix_solution():
@@ -122,6 +128,10 @@ def test_superposition_of_a_pulse_train_equals_marching_it():
     by_marching, periods = march_periodic(result.system, "heater", tolerance=1e-3)
     assert by_marching == pytest.approx(by_superposition, abs=2e-3)    # K, of a ripple about 4 K
     assert periods >= 8
+    # the hottest moment is the end of a pulse: the heater heats only while one is on
+    t_hot = result.summary["temperature"]["time_s"]
+    assert (t_hot % 0.25) == pytest.approx(0.05, abs=1e-9)
+    assert result.summary["transient"]["smallest_step_s"] > 1e-9 * 0.05
 
 
 def test_python_api_returns_the_history():

@@ -45,6 +45,8 @@ class History:
         and when; peak_error : (S,) K, its time-step error estimate (NaN unless
         ``check=True``)
     final : (n,) °C, the nodal field at the end
+    hottest : (n,) °C, the nodal field at the step end where the largest nodal
+        temperature of the run occurred; hottest_time : s, that step end
     stats : counts of factorizations, solves, rejected steps, the solver used
     """
 
@@ -69,6 +71,8 @@ class History:
     boundary_names: tuple[str, ...] = ()
     stats: dict = field(default_factory=dict)
     final: np.ndarray | None = None
+    hottest: np.ndarray | None = None
+    hottest_time: float = 0.0
 
     def peaks(self) -> dict[str, dict[str, float]]:
         """Per non-void shape: the largest temperature over the run (°C), when (s), and
@@ -106,6 +110,9 @@ class Recorder:
         self.linear_heat = None if varies(system, rho_c) else capacity(system, None, rho_c)[0]
         self.peak = np.full(ns, -np.inf)
         self.peak_time = np.zeros(ns)
+        self.hot_max = -np.inf
+        self.hottest: np.ndarray | None = None
+        self.hottest_time = 0.0
         self.probe_w = [probe_weights(mesh, p.x, p.y) for p in model.probes]
         self.is_fixed = ~np.isnan(system.edge["temperature"])
         self.rest = ~self.is_fixed & (mesh.edge_boundary >= 0)
@@ -127,7 +134,11 @@ class Recorder:
         return heat + self.drive.convection_change(T, t)
 
     def track(self, T: np.ndarray, t: float) -> None:
-        """Step-end peaks of each shape."""
+        """Step-end peaks of each shape, and the field of the hottest moment (copied only
+        when a new overall max appears)."""
+        top = float(T.max()) if len(T) else -np.inf
+        if top > self.hot_max or self.hottest is None:
+            self.hot_max, self.hottest, self.hottest_time = top, T.copy(), t
         for i, nodes in enumerate(self.shape_nodes):
             if len(nodes):
                 v = T[nodes].max()
@@ -157,7 +168,7 @@ class Recorder:
             "probes": [float(w @ T[mesh.triangles[k]]) for k, w in self.probe_w],
             "heat": heat,
             "stored": stored,
-            "power": self.drive.total_power(t, left),
+            "power": self.drive.total_power(t, left, T),
             "tmax": float(T.max()),
         })
 
@@ -193,4 +204,5 @@ class Recorder:
             peak_error=(np.full(ns, np.nan) if peak_error is None else peak_error),
             shape_names=names, probe_names=tuple(p.name for p in model.probes),
             boundary_names=tuple(b.name for b in model.boundaries), stats=stats,
-            final=final)
+            final=final, hottest=(final if self.hottest is None else self.hottest),
+            hottest_time=float(self.hottest_time))

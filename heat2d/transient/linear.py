@@ -6,7 +6,8 @@ factor, a step between rungs (a step shortened to land on a report time) solves 
 conjugate gradients preconditioned with the factor of the rung below: the preconditioned
 operator has its eigenvalues in [1, s/s_k) ⊂ [1, 2), so CG needs about a dozen
 back-substitutions for 1e-10. Where C dominates (small s), Jacobi-preconditioned CG
-replaces the factorization altogether.
+replaces the factorization altogether. A :class:`FactorCache` keeps the factorizations
+for other marches of the same K and C (the check march, the impedance marches).
 """
 
 from __future__ import annotations
@@ -30,25 +31,107 @@ above it, is factorized instead."""
 FILTER_TOL = 1e-3
 """Relative residual of the solve that filters an error estimate (a 0.1 % estimate)."""
 KEEP = 4
-"""Factorizations kept (the rungs most recently used)."""
+"""Factorizations a march keeps on its own (the rungs most recently used)."""
+BUDGET = 1.5e9
+"""Bytes of factorizations a :class:`FactorCache` keeps."""
+PROTECT = 2
+"""The most recently used entries a :class:`FactorCache` never drops."""
+
+
+class FactorCache:
+    """Factorizations of C + s K kept across the marches of one run.
+
+    The marches of a run (its history, the check march on halved steps, the impedance
+    march of each powered shape) solve with the same K and C; with rungs anchored at
+    powers of two (s = 2^k s) their matrices C + s K coincide, so a rung factorized by one
+    march serves the others. Entries are keyed by a fingerprint of (K, C, method) and the
+    rung's s; at most ``budget`` bytes (estimated from the factors' non-zeros) or ``keep``
+    entries are kept. Each march sweeps the rungs from small steps to large ones, so the
+    least recently used entry is the one the next march needs first: past the budget the
+    entry dropped is the most recently used one apart from the last :data:`PROTECT` (the
+    rungs the march is on), so that a fixed set of the first rungs stays for the next.
+    """
+
+    def __init__(self, budget: float = BUDGET, keep: int | None = None) -> None:
+        self.budget = budget
+        self.keep = keep
+        self.entries: OrderedDict[tuple, tuple[object, float]] = OrderedDict()
+        self.bases: dict[tuple, Factor] = {}
+        self.jacobi_from: dict[tuple, float] = {}
+        self.hits = 0
+        self._steady: tuple[object, object] | None = None
+
+    def steady_factor(self, system):
+        """The factor of the steady matrix K_ff of ``system`` kept by :meth:`keep_steady`
+        (for ``heat2d.fem.solver.solve(factor=...)``), or None."""
+        if self._steady is not None and self._steady[0] is system.K:
+            return self._steady[1]
+        return None
+
+    def keep_steady(self, system, factor) -> None:
+        """Keep the factor of a linear steady solve of ``system`` (its own K)."""
+        if factor is not None:
+            self._steady = (system.K, factor)
+
+    def get(self, key: tuple):
+        if key in self.entries:
+            self.entries.move_to_end(key)
+            self.hits += 1
+            return self.entries[key][0]
+        return None
+
+    def __contains__(self, key: tuple) -> bool:
+        return key in self.entries
+
+    def put(self, key: tuple, factor, size: float) -> None:
+        self.entries[key] = (factor, size)
+        while len(self.entries) > 1 and (
+                sum(v[1] for v in self.entries.values()) > self.budget
+                or (self.keep is not None and len(self.entries) > self.keep)):
+            keys = list(self.entries)                   # least recently used first
+            rest = keys[:-PROTECT] or keys[:-1]
+            del self.entries[rest[-1]]
+
+
+def _size(factor, A: sp.csr_matrix) -> float:
+    """Bytes a factorization holds, estimated (SuperLU: its non-zeros)."""
+    lu = getattr(factor, "lu", None)
+    nnz = getattr(lu, "nnz", None) if lu is not None else None
+    return 12.0 * (nnz if nnz is not None else 10 * A.nnz)
 
 
 class Ladder:
     """Solves (C + s K) x = b for the s of a rung or between rungs."""
 
-    def __init__(self, K: sp.csr_matrix, C: np.ndarray, s0: float, method: str) -> None:
+    def __init__(self, K: sp.csr_matrix, C: np.ndarray, s0: float, method: str,
+                 cache: FactorCache | None = None) -> None:
         self.K = K.tocsr()
         self.C = C
         self.s0 = s0
         self.method = method
-        self.factors: OrderedDict[int, object] = OrderedDict()
-        self.base: Factor | None = None
-        self.jacobi_below: float = math.inf  # rungs from here up are factorized
+        self.share(cache or FactorCache(keep=KEEP))
+        self.jacobi: dict[int, tuple] = {}
         self._last: tuple[float, sp.csr_matrix] | None = None
         self.factorizations = 0
         self.back_solves = 0
         self.cg_iterations = 0
         self.jacobi_rungs = 0
+
+    def share(self, cache: FactorCache) -> None:
+        """Take and keep factorizations in ``cache`` (shared with other marches)."""
+        self.cache = cache
+        K, C = self.K, self.C
+        self.print = (K.shape[0], K.nnz, float(np.abs(K.data).sum()), float(C.sum()),
+                      float(C @ np.arange(len(C), dtype=float)), self.method)
+
+    @property
+    def jacobi_below(self) -> int | float:
+        """Rungs from here up are factorized."""
+        s = self.cache.jacobi_from.get(self.print, math.inf)
+        return self.rung(s) if np.isfinite(s) else math.inf
+
+    def _has(self, k: int) -> bool:
+        return k in self.jacobi or (self.print, self.s0 * 2.0**k) in self.cache
 
     def rung(self, s: float) -> int:
         return math.floor(math.log2(s / self.s0) + 1e-9)
@@ -60,25 +143,26 @@ class Ladder:
         return self._last[1]
 
     def _factor(self, k: int):
-        if k in self.factors:
-            self.factors.move_to_end(k)
-            return self.factors[k]
         s = self.s0 * 2.0**k
         if k < self.jacobi_below:
-            f = ("jacobi", 1.0 / (self.C + s * self.K.diagonal()))
-            self.jacobi_rungs += 1
+            if k not in self.jacobi:
+                self.jacobi[k] = ("jacobi", 1.0 / (self.C + s * self.K.diagonal()))
+                self.jacobi_rungs += 1
+            return self.jacobi[k]
+        key = (self.print, s)
+        f = self.cache.get(key)
+        if f is not None:
+            return f
+        A = self.matrix(s)
+        self.factorizations += 1
+        base = self.cache.bases.get(self.print)
+        if base is None or self.method != "direct":
+            f = Factor(self.method, A, keep_order=True)
+            self.cache.bases[self.print] = f
         else:
-            A = self.matrix(s)
-            self.factorizations += 1
-            if self.base is None or self.method != "direct":
-                self.base = Factor(self.method, A, keep_order=True)
-                f = self.base
-            else:
-                f = copy.copy(self.base)          # the base's fill-reducing ordering reused
-                f.update(A)
-        self.factors[k] = f
-        while len(self.factors) > KEEP:
-            self.factors.popitem(last=False)
+            f = copy.copy(base)               # the base's fill-reducing ordering reused
+            f.update(A)
+        self.cache.put(key, f, _size(f, A))
         return f
 
     def _near(self, s: float) -> tuple[object, bool]:
@@ -87,7 +171,7 @@ class Ladder:
         k = self.rung(s)
         if abs(s / (self.s0 * 2.0**k) - 1) < 1e-12:
             return self._factor(k), True
-        use = k + 1 if (k + 1 in self.factors or k not in self.factors) else k
+        use = k + 1 if (self._has(k + 1) or not self._has(k)) else k
         return self._factor(use), False
 
     def solve(self, s: float, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
@@ -103,9 +187,10 @@ class Ladder:
                 return x
             # Too slow: factorize this rung and every one above it from now on.
             k = self.rung(s)
-            self.jacobi_below = min(self.jacobi_below, k)
-            for key in [key for key in self.factors if key >= k]:
-                del self.factors[key]
+            known = self.cache.jacobi_from.get(self.print, math.inf)
+            self.cache.jacobi_from[self.print] = min(known, self.s0 * 2.0**k)
+            for key in [key for key in self.jacobi if key >= k]:
+                del self.jacobi[key]
             return self.solve(s, b, x0)
         return self._cg(A, b, self._precond(f), x0)
 

@@ -14,15 +14,19 @@ third-order quadrature through the same three points, filtered by (C + sK)⁻¹ 
 stiff components do not inflate it (the filtering of Hosea & Shampine's estimate, from
 memory); its max-norm is held below ``tolerance``.
 
-Step sizes sit on a ladder s = s₀·2^k (one factorization per rung, kept while in use;
-:mod:`.linear`); a step moves up one rung when its error is below tolerance/16 (the
+Step sizes sit on a ladder s = 2^k seconds (one factorization per rung, kept while in
+use, and shared with the other marches of a run through a :class:`~.linear.FactorCache`:
+their rungs coincide); a step moves up one rung when its error is below tolerance/16 (the
 error of a doubled step is 8× larger), down as many rungs as the error asks when it is
-rejected, and is shortened to land exactly on report times, snapshot times and schedule
-breaks. After t = 0 and after each break two backward-Euler steps (matrix C + s K of the
-same ladder) damp the components excited by a jump: TR-BDF2's amplification R(z) is
-negative for z < −2.41 (tending to 0⁻), so a large step right after a face temperature
-jumps makes the stiff components change sign (tests/test_march.py measures a node
-falling by 9.5 K without these steps, none with them).
+rejected (never below :data:`FLOOR`), and is shortened to land exactly on schedule
+breaks, snapshot times and the end (and, with ``land_reports``, on every report time;
+else the report times are read inside the steps). Target times closer than
+:data:`MERGE` (relative) are one target. After t = 0 and after each break two
+backward-Euler steps (matrix C + s K of the same ladder) damp the components excited
+by a jump: TR-BDF2's amplification R(z) is negative for z < −2.41 (tending to 0⁻), so a
+large step right after a face temperature jumps makes the stiff components change sign
+(tests/test_march.py measures a node falling by 9.5 K without these steps, none with
+them).
 """
 
 from __future__ import annotations
@@ -39,6 +43,8 @@ from ..fem.solver import choose_method
 from ..fem.solver import solve as steady_solve
 from .forcing import forcing
 from .history import History, Recorder
+from .joule_stepper import JouleStepper, joule_steady_start
+from .linear import FactorCache
 from .steppers import LinearStepper, NewtonStepper
 
 GAMMA = 2 - math.sqrt(2)
@@ -54,12 +60,45 @@ B_EMBED = (1 - W2 - W3, W2, W3)
 STARTUP = 2
 """Backward-Euler steps after t = 0 and after each schedule break."""
 GROW = 1 / 16
+STRETCH = 0.01
+"""A step that would end this little (relative) short of a target is stretched onto it
+(else a sliver of a step would follow)."""
 MAX_REJECTS = 60
+
+
+MERGE = 1e-9
+"""Relative distance below which two target times are one (a report time computed as
+1e-5·10^(k/10) and a pulse edge at 0.21 s differ in the last bits; landing on both would
+take a step of 1e-17 s)."""
+FLOOR = 1e-10
+"""The smallest step, relative to the time reached (or to the first target): the error
+control never shortens a step below it."""
+
+
+def merge_times(values, prefer=()) -> np.ndarray:
+    """Sorted times with neighbours closer than :data:`MERGE` (relative) merged into one:
+    the ``prefer`` value (a schedule break) where the group holds one, else its first."""
+    v = np.unique(np.asarray(values, dtype=float))
+    if len(v) < 2:
+        return v
+    new = np.concatenate([[True], np.diff(v) > MERGE * np.abs(v[1:])])
+    group = np.cumsum(new) - 1
+    out = v[new].copy()
+    pref = np.isin(v, np.asarray(prefer, dtype=float))
+    out[group[pref]] = v[pref]
+    return out
+
+
+def _nearest(targets: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Index of the target nearest each value."""
+    i = np.clip(np.searchsorted(targets, values), 0, len(targets) - 1)
+    below = np.maximum(i - 1, 0)
+    return np.where(np.abs(targets[below] - values) < np.abs(targets[i] - values), below, i)
 
 
 def _targets(times, store_at, breaks, end) -> np.ndarray:
     allt = np.concatenate([np.asarray(times, float), np.asarray(store_at, float), breaks])
-    return np.unique(allt[(allt > 0) & (allt <= end)])
+    return merge_times(allt[(allt > 0) & (allt <= end)], prefer=breaks)
 
 
 def steady_start(system, *, power: Mapping[str, object] | None = None,
@@ -70,18 +109,26 @@ def steady_start(system, *, power: Mapping[str, object] | None = None,
     return _initial(system, forcing(system, power, boundary), "steady", chosen)
 
 
-def _initial(system, drive, initial, method: str) -> np.ndarray:
+def _initial(system, drive, initial, method: str, cache: FactorCache | None = None
+             ) -> np.ndarray:
     n = system.K.shape[0]
     if isinstance(initial, str):
         if initial != "steady":
             raise ValueError(f"initial must be 'steady', a number or a nodal array, "
                              f"got {initial!r}")
+        if drive.has_current:
+            return joule_steady_start(system, drive, method)
         F0 = drive.F(0.0, drive.initial_power)
         sys0 = replace(system, F=F0, fixed_value=drive.fixed_values(0.0))
         dK = drive.dK(0.0)
         if dK is not None and not system.nonlinear:
             sys0 = replace(sys0, K=(system.K + dK).tocsr())
-        return steady_solve(sys0, method=method).temperature
+        plain = dK is None and not system.nonlinear and cache is not None
+        solution = steady_solve(sys0, method=method,
+                                factor=cache.steady_factor(system) if plain else None)
+        if plain:
+            cache.keep_steady(system, solution.factor)
+        return solution.temperature
     T = np.broadcast_to(np.asarray(initial, dtype=float), (n,)).copy()
     T[system.fixed] = drive.fixed_values(0.0)
     return T
@@ -91,8 +138,8 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
           power: Mapping[str, object] | None = None, boundary: str | None = None,
           tolerance: float = 0.01, store_at: Sequence[float] = (), method: str = "auto",
           plan: tuple[np.ndarray, np.ndarray] | None = None, check: bool = False,
-          first_step: float | None = None, land_reports: bool = True,
-          rung: float | None = None,
+          first_step: float | None = None, land_reports: bool = False,
+          rung: float | None = None, cache: FactorCache | None = None,
           progress: Callable[[float, float], None] | None = None) -> History:
     """Integrate C dT/dt + K T = F(t) from the initial state over the report times.
 
@@ -130,14 +177,19 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         s: the first step; default a quarter of the first report time or of the shortest
         gap between schedule breaks.
     land_reports
-        True: steps land exactly on every report time. False: only on schedule breaks,
-        snapshot times and the end; the figures at report times in between come from the
-        quadratic through the step's three stage states (third-order, as accurate as the
-        step), so the steps follow the error control alone.
+        True: steps land exactly on every report time. False (default): only on schedule
+        breaks, snapshot times and the end (and on report times that coincide with one);
+        the figures at report times in between come from the quadratic through the
+        step's three stage states (third-order, as accurate as the step), so the steps
+        follow the error control alone.
     rung
         s: the lowest rung s₀ of the step ladder (matrices C + s₀2^k K); default from the
         first step (the check march: half the first march's, so its halved steps sit on
         rungs).
+    cache
+        Factorizations shared with other marches of the same system and capacity (a
+        :class:`~.linear.FactorCache`); a march with ``check`` shares its own with the
+        check march.
     progress
         Called as progress(t, end) after each accepted step.
     """
@@ -147,25 +199,39 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     end = float(times[-1])
     drive = forcing(system, power, boundary)
     breaks = drive.breaks(end)
-    targets = _targets(times if land_reports else times[-1:], store_at, breaks, end)
+    times = merge_times(times, prefer=breaks)
+    store = np.asarray(store_at, dtype=float)
+    targets = _targets(times if land_reports else times[-1:], store, breaks, end)
+    at = _nearest(targets, times)
+    on = np.abs(targets[at] - times) <= MERGE * times
+    times = np.where(on, targets[at], times)        # report times landed on: exactly
     chosen = method if method != "auto" else choose_method(len(system.K.indptr) - 1)
-    T0 = _initial(system, drive, initial, chosen)
+    T0 = _initial(system, drive, initial, chosen, cache)
     gaps = np.diff(np.concatenate([[0.0], breaks])) if len(breaks) else np.array([end])
     h_first = first_step or min(times[0], targets[0], float(gaps.min())) / 4
     if plan is not None:
         h_first = float(np.diff(np.concatenate([[0.0], plan[0]])).min())
-    nonlinear = system.nonlinear or varies(system, rho_c) or drive.varies_matrix
-    s0 = rung or D * h_first
-    stepper = (NewtonStepper(system, drive, T0, rho_c, chosen) if nonlinear
+    # Currents flow when the model's schedules drive the march (not in an impedance march,
+    # whose ``power`` mapping powers only the named shapes).
+    joule = drive.has_current
+    nonlinear = joule or system.nonlinear or varies(system, rho_c) or drive.varies_matrix
+    # Rungs at powers of two (s = 2^k s): every march of the system meets the same ones.
+    s0 = rung or 2.0 ** math.floor(math.log2(D * h_first))
+    if check and cache is None:
+        cache = FactorCache()
+    newton = JouleStepper if joule else NewtonStepper
+    stepper = (newton(system, drive, T0, rho_c, chosen) if nonlinear
                else LinearStepper(system, drive, T0, rho_c, s0, chosen))
-    rec = Recorder(system, drive, T0, rho_c, times, store_at)
+    if cache is not None and isinstance(stepper, LinearStepper):
+        stepper.ladder.share(cache)
+    rec = Recorder(system, drive, T0, rho_c, times, store)
     rec.record(T0, 0.0, np.zeros(len(system.fixed)))
     rec.track(T0, 0.0)
-    report = (set(np.searchsorted(targets, times).tolist()) if land_reports
-              else {len(targets) - 1})
-    between = [] if land_reports else list(times[:-1])
-    snap = set(np.searchsorted(targets, np.asarray(store_at, float)).tolist())
-    if 0.0 in np.asarray(store_at, float):
+    report = set(at[on].tolist())
+    between = list(times[~on])
+    inside = store[(store > 0) & (store <= end * (1 + MERGE))]
+    snap = set(_nearest(targets, inside).tolist()) if len(inside) else set()
+    if np.any(store == 0.0):
         rec.snapshot(T0, 0.0)
     is_break = np.isin(targets, breaks)
 
@@ -187,7 +253,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             euler = startup > 0
             s = s0 * 2.0**k
             h = s if euler else s / D
-        landing = t + h * (1 + 1e-6) >= target
+        landing = t + h * (1 + STRETCH) >= target
         if plan is not None:
             if t_new > target * (1 + 1e-12):
                 raise ValueError(f"the planned steps pass the report time {target:g} s")
@@ -196,7 +262,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             h = target - t
             s = h if euler else D * h
         try:
-            step = _step(stepper, rec, T, t, h, s, euler)
+            step = _step(stepper, rec, T, t, h, s, euler, estimate=plan is None)
         except SolveError:
             if plan is not None:
                 raise
@@ -213,6 +279,10 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             drop = 1 if not np.isfinite(err) else max(
                 1, math.ceil(math.log(err / (0.5 * tolerance)) / math.log(2**order)))
             k = math.floor(math.log2(s / s0) + 1e-9) - drop
+            floor = FLOOR * max(t, float(targets[0]))
+            if s0 * 2.0**k < (floor if euler else D * floor):
+                raise SolveError(f"the time step fell below {floor:.3g} s at t = {t:.6g} s "
+                                 f"(error {err:.3g} K)", file=system.model.source)
             continue
         rejects = 0
         T_prev = T
@@ -260,11 +330,12 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     fine = march(system, times=times, initial=T0, rho_c=rho_c, power=power,
                  boundary=boundary, tolerance=tolerance, store_at=store_at, method=method,
                  plan=(fine_ends, np.repeat(flags, 2)), land_reports=land_reports,
-                 rung=s0 / 2, progress=progress)
+                 rung=s0 / 2, cache=cache, progress=progress)
     error = np.abs(np.nanmax(hist.shape_max, axis=1) - np.nanmax(fine.shape_max, axis=1)) / 3
     peak_error = np.abs(hist.peak_max - fine.peak_max) / 3
     return replace(fine, error=error, peak_error=peak_error,
-                   stats={**fine.stats, "coarse": counts})
+                   stats={**fine.stats, "coarse": counts,
+                          "largest_local_error_k": counts["largest_local_error_k"]})
 
 
 def _reaction(stepper, T: np.ndarray, t: float, left: float) -> np.ndarray:
@@ -298,9 +369,9 @@ def _between(stepper, T0, Tg, T1, t0: float, h: float, tau: float, euler: bool
 
 
 def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
-          euler: bool):
-    """One step from (T, t): (T_new, error estimate K, energy in J, energy out J, the
-    state at t + γh or None)."""
+          euler: bool, estimate: bool = True):
+    """One step from (T, t): (T_new, error estimate K (0 without ``estimate``: a replayed
+    step), energy in J, energy out J, the state at t + γh or None)."""
     free, fixed = stepper.free, stepper.fixed
     t1 = t + h                          # powers there: the left limit (left=h)
     Hn = stepper.H(T)
@@ -310,7 +381,7 @@ def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
         T1 = stepper.stage(s, Hn[free], t1, T, h)
         H1 = stepper.H(T1)
         R1 = stepper.residual(T1, t1, h)
-        est = stepper.filter(s, 0.5 * h * (Rn[free] - R1[free]))
+        est = stepper.filter(s, 0.5 * h * (Rn[free] - R1[free])) if estimate else None
         points = ((t1, T1, R1, 1.0),)
     else:
         tg = t + GAMMA * h
@@ -323,15 +394,15 @@ def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
         R1 = stepper.residual(T1, t1, h)
         raw = (H1[free] - Hn[free]) + h * (B_EMBED[0] * Rn[free] + B_EMBED[1] * Rg[free]
                                            + B_EMBED[2] * R1[free])
-        est = stepper.filter(s, raw)
+        est = stepper.filter(s, raw) if estimate else None
         points = ((t, T, Rn, B_SCHEME[0]), (tg, Tg, Rg, B_SCHEME[1]),
                   (t1, T1, R1, B_SCHEME[2]))
-    err = float(np.abs(est).max()) if len(est) else 0.0
+    err = float(np.abs(est).max()) if est is not None and len(est) else 0.0
     if not np.all(np.isfinite(T1)):
         return T1, np.inf, 0.0, 0.0, None
     lefts = (None, None, h)[-len(points):]
-    e_in = h * sum(w * drive.total_power(tp, lf)
-                   for (tp, _, _, w), lf in zip(points, lefts, strict=True))
+    e_in = h * sum(w * drive.total_power(tp, lf, Tp)      # I²R depends on the state
+                   for (tp, Tp, _, w), lf in zip(points, lefts, strict=True))
     e_edge = h * sum(w * rec.edge_out(Tp, tp).sum() for tp, Tp, _, w in points)
     e_fixed = -(H1[fixed] - Hn[fixed]).sum() - h * sum(w * Rp[fixed].sum()
                                                        for _, _, Rp, w in points)

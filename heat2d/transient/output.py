@@ -22,9 +22,7 @@ def hottest_result(result) -> Result:
     """The field at the hottest moment as a steady-style :class:`Result` (for the map and
     the VTU; its summary is the transient summary)."""
     history, system = result.history, result.system
-    T = getattr(history, "hottest", None)
-    if T is None:
-        T = history.final
+    T = history.hottest
     kx, ky, _, _ = system.conductivity(T)
     grad = system.gradients(T).T
     flux = -np.column_stack([kx * grad[0], ky * grad[1]])

@@ -28,14 +28,15 @@ from ..fem.mesh import build_mesh
 from ..fem.solver import solve
 from .forcing import forcing
 from .history import History
-from .march import march
+from .linear import FactorCache
+from .march import march, merge_times, steady_start
 from .network import cauer, foster_fit, modal_network
 from .periodic import duty_family, periodic_peak
 
 Progress = Callable[[str, str], None]
 """Called as progress(stage, event) with event "start", then "end" or "failed"."""
 
-MODES = 24
+MODES = 12
 """Eigenpairs of the modal network (the slowest modes: the check of the fitted network
 at times past the fastest of them)."""
 MODAL_LIMIT = 400_000
@@ -165,13 +166,15 @@ def run_transient(model, *, method: str = "auto", refine: float = 1.0,
     system = stage("assembly", assemble, mesh)
     times = report_times(system, settings)
     initial = "steady" if settings.initial == "steady" else float(settings.start_temperature)
+    cache = FactorCache()           # the marches of the run share their factorizations
     history = stage("march", march, system, times=times, initial=initial,
                     tolerance=settings.tolerance, store_at=settings.snapshot_times(),
-                    method=method, check=check)
+                    method=method, check=check, cache=cache)
     zth_on = settings.zth if zth is None else zth
     curves, networks, duty, periodic = {}, {}, {}, {}
     if zth_on:
-        curves, networks = stage("impedance", impedances, system, times, settings, method)
+        curves, networks = stage("impedance", impedances, system, times, settings, method,
+                                 cache=cache)
         for name, net in networks.items():
             widths = _widths(times)
             duty[name] = {"widths": widths, "duties": tuple(settings.duties),
@@ -198,7 +201,7 @@ def report_times(system, settings) -> np.ndarray:
     in time, so the value at a pulse's end is the peak that pulse reaches)."""
     times = settings.report_times()
     edges = forcing(system).breaks(float(times[-1]))[:MAX_EDGE_TIMES]
-    return np.union1d(times, edges)
+    return merge_times(np.concatenate([times, edges]), prefer=edges)
 
 
 def powered_shapes(system) -> list[tuple[str, float]]:
@@ -212,14 +215,15 @@ def powered_shapes(system) -> list[tuple[str, float]]:
     return out
 
 
-def impedances(system, times: np.ndarray, settings, method: str) -> tuple[dict, dict]:
+def impedances(system, times: np.ndarray, settings, method: str,
+               cache: FactorCache | None = None) -> tuple[dict, dict]:
     """Z(t) of a power step in each powered shape alone, and its Foster, Cauer and modal
     networks with the steady resistance as their total."""
     model = system.model
     linear = not model.transient_nonlinear
     curves, networks = {}, {}
     if not linear:
-        zero_state = _state_at_zero(system, {}, settings.tolerance, method)
+        zero_state = steady_start(system, power={}, method=method)
     for name, peak in powered_shapes(system):
         if peak <= 0:
             continue
@@ -227,18 +231,17 @@ def impedances(system, times: np.ndarray, settings, method: str) -> tuple[dict, 
         # K per W: a rise of `tolerance` K at the shape's peak power.
         if linear:
             hist = march(system, times=times, initial=0.0, power={name: 1.0},
-                         boundary="zero", tolerance=settings.tolerance / peak, method=method)
+                         boundary="zero", tolerance=settings.tolerance / peak, method=method,
+                         cache=cache)
             z = hist.shape_max[:, index]
-            r_total, node = _steady_rise(system, name, method)
+            r_total, node = _steady_rise(system, name, method, cache)
         else:
             hist = march(system, times=times, initial=zero_state, power={name: peak},
                          tolerance=settings.tolerance, method=method)
             base = hist.shape_max[0, index]
             z = (hist.shape_max[:, index] - base) / peak
-            # The steady state at the peak power is the start state of a march held there.
-            steady = march(system, times=times[:1], initial="steady", power={name: peak},
-                           tolerance=settings.tolerance, method=method)
-            r_total = float((steady.shape_max[0, index] - base) / peak)
+            steady = steady_start(system, power={name: peak}, method=method)
+            r_total = float((steady[_nodes(system, index)].max() - base) / peak)
             node = None
         t, zz = hist.times[1:], z[1:]
         if not r_total > 0 or not np.isfinite(r_total):
@@ -255,11 +258,17 @@ def impedances(system, times: np.ndarray, settings, method: str) -> tuple[dict, 
     return curves, networks
 
 
-def _steady_rise(system, name: str, method: str) -> tuple[float, int]:
-    """Steady max rise of shape ``name`` per watt in it (K/W) and the node where it is."""
+def _steady_rise(system, name: str, method: str, cache: FactorCache | None = None
+                 ) -> tuple[float, int]:
+    """Steady max rise of shape ``name`` per watt in it (K/W) and the node where it is
+    (with the steady factor the run's start kept in ``cache``, when there is one)."""
     drive = forcing(system, {name: 1.0}, "zero")
     unit = replace(system, F=drive.F(0.0), fixed_value=np.zeros(len(system.fixed)))
-    T = solve(unit, method=method).temperature
+    factor = cache.steady_factor(system) if cache is not None else None
+    solution = solve(unit, method=method, factor=factor)
+    if cache is not None:
+        cache.keep_steady(system, solution.factor)
+    T = solution.temperature
     tri = system.mesh.triangles[system.mesh.triangle_shape == system.model.shape(name).index]
     nodes = np.unique(tri)
     node = int(nodes[np.argmax(T[nodes])])
@@ -338,7 +347,7 @@ def march_periodic(system, name: str, *, tolerance: float = 0.01, method: str = 
     s = replace(shape.schedule, count=None, delay=0.0)
     mean = s.base + (s.amplitude - s.base) * s.width / s.period
     sources = _sources(model)
-    state = _state_at_zero(system, {**sources, name: mean}, tolerance, method)
+    state = steady_start(system, power={**sources, name: mean}, method=method)
     ends = s.width + s.period * np.arange(block)
     times = np.append(ends, s.period * block)       # the block ends on a whole period
     last, periods = None, 0
@@ -364,20 +373,18 @@ def _sources(model) -> dict:
             (sh.power is not None and sh.power_density is None)}
 
 
-def _state_at_zero(system, power: dict, tolerance: float, method: str) -> np.ndarray:
-    """The steady state of the given powers as they are just before t = 0 (nodal °C)."""
-    return march(system, times=np.array([1e-12]), initial="steady", power=power,
-                 tolerance=tolerance, method=method, store_at=(0.0,),
-                 first_step=1e-12).snapshots[0]
-
-
 def _steady_max(system, name: str, power: float, method: str) -> float:
     """Steady max of shape ``name`` with every source at its power before t = 0 and this
     one at ``power``."""
     model = system.model
-    state = _state_at_zero(system, {**_sources(model), name: power}, 0.01, method)
-    tri = system.mesh.triangles[system.mesh.triangle_shape == model.shape(name).index]
-    return float(state[np.unique(tri)].max())
+    state = steady_start(system, power={**_sources(model), name: power}, method=method)
+    return float(state[_nodes(system, model.shape(name).index)].max())
+
+
+def _nodes(system, index: int) -> np.ndarray:
+    """The nodes of shape ``index``."""
+    mesh = system.mesh
+    return np.unique(mesh.triangles[mesh.triangle_shape == index])
 
 
 def _widths(times: np.ndarray) -> np.ndarray:

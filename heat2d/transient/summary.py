@@ -35,10 +35,7 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
     """The summary dict of a :class:`~.run.TransientResult` (before its summary is set)."""
     system, history = result.system, result.history
     mesh, model = system.mesh, system.model
-    hot = getattr(history, "hottest", None)
-    hot_time = float(getattr(history, "hottest_time", history.times[-1]))
-    if hot is None:
-        hot, hot_time = history.final, float(history.times[-1])
+    hot, hot_time = history.hottest, float(history.hottest_time)
     tri = mesh.triangles
     stats = shape_stats(mesh, hot[tri], system.layout.source, system.qdot * system.layout.volume)
     node = int(np.argmax(hot))
