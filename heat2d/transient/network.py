@@ -114,16 +114,30 @@ def _refit(t, z, r_total, r0, tau0, span) -> tuple[np.ndarray, np.ndarray]:
     n = len(r0)
     weight = WEIGHT * np.sqrt(len(t))
 
+    w = _scale(z, r_total)
+
     def residual(x):
         r, tau = x[:n], np.exp(x[n:])
-        return np.concatenate([(_design(t, tau) @ r - z) / _scale(z, r_total),
+        return np.concatenate([(_design(t, tau) @ r - z) / w,
                                [weight * (r.sum() - r_total) / r_total]])
+
+    def jacobian(x):
+        # ∂/∂Rⱼ = (1 − e^(−t/τⱼ))/w, ∂/∂ln τⱼ = −Rⱼ (t/τⱼ) e^(−t/τⱼ)/w; the total's row.
+        r, tau = x[:n], np.exp(x[n:])
+        u = t[:, None] / tau[None, :]
+        e = np.exp(-u)
+        jac = np.zeros((len(t) + 1, 2 * n))
+        jac[:-1, :n] = -np.expm1(-u) / w[:, None]
+        jac[:-1, n:] = -(r[None, :] * u * e) / w[:, None]
+        jac[-1, :n] = weight / r_total
+        return jac
 
     x0 = np.concatenate([r0, np.log(tau0)])
     lo = np.concatenate([np.zeros(n), np.full(n, np.log(span[0]))])
     hi = np.concatenate([np.full(n, np.inf), np.full(n, np.log(span[1]))])
     x0 = np.clip(x0, lo, np.where(np.isfinite(hi), hi, x0 + 1))
-    fit = least_squares(residual, x0, bounds=(lo, hi), x_scale="jac", max_nfev=200 * n)
+    fit = least_squares(residual, x0, jac=jacobian, bounds=(lo, hi), x_scale="jac",
+                        max_nfev=40 * n + 100)
     r, tau = fit.x[:n], np.exp(fit.x[n:])
     order = np.argsort(tau)
     return r[order], tau[order]
@@ -164,15 +178,20 @@ def foster_fit(t, z, r_total: float, *, terms: int | None = None,
     else:
         counts = list(range(1, max(1, min(max_terms, len(r_live))) + 1))
     best = None
+    stalled = 0
     for n in counts:
         r0, tau0 = _merge(r_live, tau_live, n)
         r, tau = _refit(t, z, r_total, r0, tau0, span)
         r = r * (r_total / r.sum())
         err, rms = _errors(t, z, r, tau, r_total)
+        if terms is None and err < TARGET:
+            return Foster(r=r, tau=tau, error=err, rms=rms)
+        # More terms that no longer improve the fit by a tenth are not supported by the
+        # data: stop after two of them (the best so far is kept).
+        stalled = stalled + 1 if best is not None and err > 0.9 * best.error else 0
         if best is None or err < best.error:
             best = Foster(r=r, tau=tau, error=err, rms=rms)
-        if terms is None and err < TARGET:
-            best = Foster(r=r, tau=tau, error=err, rms=rms)
+        if stalled >= 2:
             break
     return best
 
