@@ -143,6 +143,29 @@ def _refit(t, z, r_total, r0, tau0, span) -> tuple[np.ndarray, np.ndarray]:
     return r[order], tau[order]
 
 
+CLOSE = 1.1
+"""Terms whose time constants are within this ratio are one term (R summed, log τ
+R-weighted): the data cannot tell them apart."""
+
+
+def _close_merged(f: Foster, t, z, r_total) -> Foster:
+    r, logt = list(f.r), list(np.log(f.tau))
+    i = 0
+    while i < len(r) - 1:
+        if logt[i + 1] - logt[i] < np.log(CLOSE):
+            total = r[i] + r[i + 1]
+            logt[i] = (r[i] * logt[i] + r[i + 1] * logt[i + 1]) / total
+            r[i] = total
+            del r[i + 1], logt[i + 1]
+        else:
+            i += 1
+    if len(r) == len(f.r):
+        return f
+    r, tau = np.array(r), np.exp(np.array(logt))
+    err, rms = _errors(t, z, r, tau, r_total)
+    return Foster(r=r, tau=tau, error=err, rms=rms)
+
+
 def foster_fit(t, z, r_total: float, *, terms: int | None = None,
                max_terms: int = 12) -> Foster:
     """Fit a Foster network to a step-response curve z(t) (K/W) with Σ Rᵢ = r_total.
@@ -185,7 +208,7 @@ def foster_fit(t, z, r_total: float, *, terms: int | None = None,
         r = r * (r_total / r.sum())
         err, rms = _errors(t, z, r, tau, r_total)
         if terms is None and err < TARGET:
-            return Foster(r=r, tau=tau, error=err, rms=rms)
+            return _close_merged(Foster(r=r, tau=tau, error=err, rms=rms), t, z, r_total)
         # More terms that no longer improve the fit by a tenth are not supported by the
         # data: stop after two of them (the best so far is kept).
         stalled = stalled + 1 if best is not None and err > 0.9 * best.error else 0
@@ -193,7 +216,7 @@ def foster_fit(t, z, r_total: float, *, terms: int | None = None,
             best = Foster(r=r, tau=tau, error=err, rms=rms)
         if stalled >= 2:
             break
-    return best
+    return best if terms is not None else _close_merged(best, t, z, r_total)
 
 
 def _poly_mul(p: list[Fraction], q: list[Fraction]) -> list[Fraction]:
