@@ -133,3 +133,63 @@ def test_sweep_gives_transient_columns(model_file, tmp_path):
     # Linear model: the impedance per watt does not depend on the power.
     key = next(k for k in rows[0] if k.startswith("zth_k_per_w:pad@"))
     assert float(rows[0][key]) == pytest.approx(float(rows[1][key]), rel=1e-6)
+
+
+TRACE = """
+[model]
+length_unit = "mm"
+depth = 100
+[materials.fr4]
+kx = 1.06
+ky = 0.34
+density = 1900
+specific_heat = 1150
+[materials.copper]
+k = 385
+density = 8960
+specific_heat = 385
+resistivity = 1.724e-8
+temperature_coefficient = 0.00393
+[[shape]]
+name = "board"
+material = "fr4"
+rect = { x = 0, y = 0, width = 10, height = 1.6 }
+[[shape]]
+name = "trace"
+material = "copper"
+rect = { x = 4.875, y = 1.6, width = 0.25, height = 0.035 }
+current = 1
+current_pulse = { current = 10, width = 0.01 }
+[[boundary]]
+name = "air"
+on = "exterior"
+h = 10
+ambient = 25
+[mesh]
+size = 0.4
+[transient]
+end = 1
+first = 1e-4
+zth = false
+"""
+
+
+def test_a_current_pulse_reports_the_conductor_at_its_hottest(tmp_path):
+    # 10 A for 10 ms through a 35 × 250 µm trace (1 A before and after): the trace is
+    # hottest at the pulse's end, where Ohm's law gives loss = I² R' L and drop = I R' L.
+    path = tmp_path / "trace.toml"
+    path.write_text(TRACE, encoding="utf-8")
+    out = tmp_path / "out"
+    assert cli.main(["run", str(path), "--out", str(out), "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["hot_spot"]["time_s"] == pytest.approx(0.01, rel=1e-9)
+    c = summary["conductors"]["trace"]
+    assert c["current_a"] == 10
+    assert c["loss_w"] == pytest.approx(100 * c["resistance_ohm_per_m"] * 0.1, rel=1e-9)
+    assert c["voltage_v"] == pytest.approx(10 * c["resistance_ohm_per_m"] * 0.1, rel=1e-9)
+    # The resistance follows ρ(T) = ρ₂₀(1 + α(T − 20)) at the trace's mean temperature.
+    rho = 1.724e-8 * (1 + 0.00393 * (c["mean_c"] - 20))
+    assert c["resistance_ohm_per_m"] == pytest.approx(rho / (0.25e-3 * 35e-6), rel=1e-3)
+    eb = summary["energy_balance"]
+    assert eb["energy_in_j"] == pytest.approx(eb["stored_j"] + eb["heat_out_j"], rel=1e-8)
+    assert "long and straight" in summary["caution"]

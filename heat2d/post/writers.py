@@ -216,10 +216,16 @@ _REPORT_FILES = re.compile(r"report\.html|\.report\.html\.new-\d+-[0-9a-f]+")
 name it is written under before its rename."""
 
 
+_TRANSIENT_FILES = re.compile(r"transient\.csv|rc_networks\.(csv|json)|.+\.pvd", re.DOTALL)
+"""What a transient run writes beside these (``heat2d.transient.files``): the time series,
+the RC networks and the VTU collection; its VTU series and plots match the patterns of
+:data:`WRITERS`."""
+
+
 def is_output_name(name: str) -> bool:
-    """Whether a file name is one :func:`write` produces (for some stem), or the report
-    ``heat2d run --report`` adds."""
-    if _REPORT_FILES.fullmatch(name):
+    """Whether a file name is one :func:`write` or a transient run produces (for some
+    stem), or the report ``heat2d run --report`` adds."""
+    if _REPORT_FILES.fullmatch(name) or _TRANSIENT_FILES.fullmatch(name):
         return True
     return any(re.fullmatch(".+".join(re.escape(part) for part in pattern.split("{stem}")),
                             name, re.DOTALL) for pattern, _ in WRITERS.values())

@@ -88,6 +88,12 @@ def format_transient(summary: dict[str, Any]) -> str:
         lines.append(f"periodic {name}: {p['pulse_w']:g} W pulses of {p['width_s']:g} s every "
                      f"{p['period_s']:g} s (duty {100 * p['duty']:.3g} %): peak "
                      f"{p['peak']:.2f} °C in periodic steady state ({p['method']})")
+    for name, c in summary.get("conductors", {}).items():
+        hot, cold = 1e3 * c["resistance_ohm_per_m"], 1e3 * c["cold_resistance_ohm_per_m"]
+        lines.append(f"conductor {name} at the hottest moment: {c['current_a']:.4g} A, "
+                     f"{hot:.4g} mΩ/m ({cold:.4g} cold), "
+                     f"loss {c['loss_w']:.4g} W, drop {1e3 * c['voltage_v']:.4g} mV, max "
+                     f"{c['max_c']:.2f} °C")
     eb = summary["energy_balance"]
     lines += ["", f"energy over the run: in {eb['energy_in_j']:.6g} J = stored "
                   f"{eb['stored_j']:.6g} J + out {eb['heat_out_j']:.6g} J "

@@ -22,7 +22,7 @@ import numpy as np
 
 from ..fem.sanity import check_finite
 from ..post.resistance import shape_stats, surface_means
-from ..post.results import CAUTION
+from ..post.results import CAUTION, CONDUCTOR_CAUTION
 from ..version import __version__
 
 TIME_CAUTION = (
@@ -113,8 +113,30 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
         "warnings": warnings,
         "caution": CAUTION + " " + TIME_CAUTION,
     }
+    if model.has_current:
+        summary["conductors"] = _conductors_at(system, hot, hot_time)
+        for name, c in summary["conductors"].items():
+            for member in c.get("members", {name: c}):
+                if member in summary["shapes"]:
+                    summary["shapes"][member]["power_w"] = (
+                        c["members"][member]["loss_w"] if "members" in c else c["loss_w"])
+        summary["caution"] += " " + CONDUCTOR_CAUTION
     check_finite({"summary": summary}, model.source)
     return summary
+
+
+def _conductors_at(system, T: np.ndarray, t: float) -> dict[str, Any]:
+    """Each conductor's figures (:func:`heat2d.fem.joule.conductor_figures`) at the
+    hottest moment, with the currents of that moment."""
+    from ..fem.joule import conductor_figures
+    from .forcing import forcing
+    from .joule_stepper import with_currents
+
+    drive = forcing(system)
+    # The currents just before t: the hottest moment is often a pulse's end.
+    left = 2e-6 * max(t, 1e-12)
+    figures = conductor_figures(with_currents(system, drive.currents(t, left)), T)
+    return {name: {**c, "time_s": t} for name, c in figures.items()}
 
 
 def _transient(result) -> dict[str, Any]:
