@@ -193,3 +193,18 @@ def test_a_current_pulse_reports_the_conductor_at_its_hottest(tmp_path):
     eb = summary["energy_balance"]
     assert eb["energy_in_j"] == pytest.approx(eb["stored_j"] + eb["heat_out_j"], rel=1e-8)
     assert "long and straight" in summary["caution"]
+
+
+def test_a_periodic_peak_over_the_limit_is_warned(tmp_path):
+    # Three pulses keep the pad under its 200 °C limit (peak about 172 °C), the same train
+    # repeated for ever would not (about 385 °C): --strict passes, the summary warns.
+    text = transient_board().replace("count = 3 }\n", "count = 3 }\nmax_temperature = 200\n")
+    path = tmp_path / "limit.toml"
+    path.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    assert cli.main(["run", str(path), "--out", str(out), "--strict", "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["limits"]["pad"]["exceeded"] is False
+    periodic = summary["transient"]["periodic"]["pad"]["peak"]
+    assert periodic > 200 > summary["limits"]["pad"]["max"]
+    assert any("repeated for ever" in w and "pad" in w for w in summary["warnings"])

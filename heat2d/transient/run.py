@@ -314,7 +314,8 @@ def periodic_figures(system, history: History, networks: dict, *, tolerance: flo
             base = float(history.shape_max[0, shape.index])
             if system.model.transient.initial != "steady":
                 base = _steady_max(system, shape.name, s.base, method)
-            entry.update(rise_per_w=factor, peak=base + (s.amplitude - s.base) * factor,
+            peak = float(base + (s.amplitude - s.base) * factor)
+            entry.update(rise_per_w=float(factor), peak=peak,
                          method="superposition of the step response")
         else:
             peak, periods = march_periodic(system, shape.name, tolerance=tolerance,

@@ -65,6 +65,12 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
                 warnings.append(f"shape \"{sh.name}\" reaches {t:.1f} °C at "
                                 f"{shapes[sh.name]['time_s']:.4g} s, above its limit "
                                 f"{sh.max_temperature:g} °C")
+    for name, per in result.periodic.items():
+        limit = model.shape(name).max_temperature
+        if limit is not None and per["peak"] > limit:
+            warnings.append(f"shape \"{name}\": its pulse train repeated for ever (duty "
+                            f"{100 * per['duty']:.3g} %) would reach {per['peak']:.1f} °C, "
+                            f"above its limit {limit:g} °C")
     means = surface_means(mesh, system.layout, history.final)
     boundaries = {b.name: {"kind": b.label, "heat_out_w": float(history.heat_out[-1, i]),
                            "heat_out_peak_w": float(np.max(history.heat_out[:, i])),
