@@ -24,12 +24,8 @@ KELVIN = 273.15
 
 
 class Pattern:
-    """A CSR sparsity pattern and, for each element entry, its slot in the data array.
-
-    Built from the mesh edges (3 per triangle) rather than from all 9 entries per
-    triangle: the pattern is the diagonal, both directions of every edge, and any extra
-    couplings (interfaces).
-    """
+    """A CSR sparsity pattern (the diagonal, both directions of every mesh edge, and any
+    extra couplings such as interfaces) and, for each element entry, its data slot."""
 
     def __init__(self, n: int, triangles: np.ndarray, extra_rows: np.ndarray,
                  extra_cols: np.ndarray) -> None:
@@ -48,12 +44,13 @@ class Pattern:
         where = where.ravel()
         ne = len(edge_keys)
         down, up, diag = where[:ne], where[ne:2 * ne], where[2 * ne:2 * ne + n]
-        self.extra_slots = where[2 * ne + n:]
+        del rows, cols, where
         self.indices = (self.keys % n).astype(np.int32)
         self.indptr = np.searchsorted(self.keys // n, np.arange(n + 1)).astype(np.int32)
         # Element entry (i, j) of each triangle, row-major: the diagonal slot of node i,
         # or the slot of edge {i, j} in the direction row i → column j.
-        slots = np.empty((len(triangles), 3, 3), dtype=np.int64)
+        slot_type = np.int32 if len(self.keys) < 2**31 else np.int64
+        slots = np.empty((len(triangles), 3, 3), dtype=slot_type)
         for i in range(3):
             slots[:, i, i] = diag[triangles[:, i]]
         for k, (i, j) in enumerate(local):
@@ -80,12 +77,12 @@ class Pattern:
 class Layout:
     """What depends on the mesh alone: element geometry, integration weights, pattern.
 
-    Weights already include the depth (planar) or 2πr (axisymmetric), in SI units.
+    Weights include the depth (planar) or 2πr (axisymmetric), in SI units. Element
+    matrices are computed where used, not stored: ∫ ∂φi/∂x ∂φj/∂x dV = V b_i b_j with
+    V = ∫ dV and b = ``grad_b`` constant per triangle (:meth:`element_matrices`).
     """
 
-    kx_unit: np.ndarray        # (m, 3, 3): ∫ ∂φi/∂x ∂φj/∂x dV per unit k
-    ky_unit: np.ndarray        # (m, 3, 3)
-    source: np.ndarray         # (m, 3): ∫ φi dV, m³
+    source: np.ndarray         # (m, 3): ∫ φi dV, m³ (planar: a read-only view of V/3)
     volume: np.ndarray         # (m,): ∫ dV, m³
     edge_load: np.ndarray      # (e, 2): ∫ φi dS over each exposed edge, m²
     edge_mass: np.ndarray      # (e, 2, 2): ∫ φi φj dS, m²
@@ -97,6 +94,49 @@ class Layout:
     interface_a: np.ndarray
     interface_b: np.ndarray
     n: int
+
+    kx_unit = property(lambda self: self.element_matrices(1.0, 0.0),
+                       doc="(m, 3, 3) ∫ ∂φi/∂x ∂φj/∂x dV per unit k, computed on each use")
+    ky_unit = property(lambda self: self.element_matrices(0.0, 1.0),
+                       doc="(m, 3, 3) ∫ ∂φi/∂y ∂φj/∂y dV per unit k, computed on each use")
+
+    def element_matrices(self, kx: np.ndarray, ky: np.ndarray, select=None) -> np.ndarray:
+        """(m, 3, 3) K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV with kx, ky per
+        triangle (of ``select`` when given)."""
+        b, c, v = self.grad_b, self.grad_c, self.volume
+        if select is not None:
+            b, c, v = b[select], c[select], v[select]
+        ke = (kx * v)[:, None, None] * b[:, :, None] * b[:, None, :]
+        cv = c * (ky * v)[:, None]
+        for i in range(3):
+            ke[:, i, :] += cv[:, i, None] * c
+        return ke
+
+    def conduction(self, kx: np.ndarray, ky: np.ndarray, values: np.ndarray,
+                   rows: np.ndarray, cols: np.ndarray) -> sp.csr_matrix:
+        """Σ_e K_e as CSR plus ``values`` at (``rows``, ``cols``): one COO of each
+        triangle's three edges both ways (K_e is symmetric) and one diagonal entry per
+        node, 6m + n entries rather than 9m, summed by scipy's COO → CSR."""
+        tri, n, m = self.triangles, self.n, len(self.triangles)
+        b, c = self.grad_b, self.grad_c
+        kxv, kyv = kx * self.volume, ky * self.volume
+        size = 6 * m + n + len(values)
+        index = tri.dtype if size < 2**31 else np.int64
+        data, r, q = np.empty(size), np.empty(size, index), np.empty(size, index)
+        off, r_off, q_off = (a[:6 * m].reshape(2, 3, m) for a in (data, r, q))
+        for k, (i, j) in enumerate(((0, 1), (1, 2), (2, 0))):
+            np.multiply(b[:, i] * b[:, j], kxv, out=off[0, k])
+            off[0, k] += c[:, i] * c[:, j] * kyv
+            r_off[0, k], q_off[0, k] = tri[:, i], tri[:, j]
+        off[1], r_off[1], q_off[1] = off[0], q_off[0], r_off[0]
+        data[6 * m:6 * m + n] = np.bincount(tri.ravel(), (kxv[:, None] * b * b
+                                                          + kyv[:, None] * c * c).ravel(),
+                                            minlength=n)
+        r[6 * m:6 * m + n] = q[6 * m:6 * m + n] = np.arange(n)
+        data[6 * m + n:], r[6 * m + n:], q[6 * m + n:] = values, rows, cols
+        K = sp.coo_matrix((data, (r, q)), shape=(n, n))
+        del data, r, q, off, r_off, q_off
+        return K.tocsr()
 
     @cached_property
     def pattern(self) -> Pattern:
@@ -121,35 +161,31 @@ class Layout:
 
 
 def build_layout(mesh: Mesh) -> Layout:
-    """Element matrices per unit conductivity, weights and the sparsity pattern."""
-    model = mesh.model
-    s = model.unit_m
-    tri = mesh.triangles
-    x, y = mesh.points[tri, 0] * s, mesh.points[tri, 1] * s               # (m, 3), metres
-    b = np.column_stack([y[:, 1] - y[:, 2], y[:, 2] - y[:, 0], y[:, 0] - y[:, 1]])
-    c = np.column_stack([x[:, 2] - x[:, 1], x[:, 0] - x[:, 2], x[:, 1] - x[:, 0]])
+    """Element gradients, integration weights and (on first use) the sparsity pattern."""
+    model, tri = mesh.model, mesh.triangles
+    x, y = mesh.points[tri, 0] * model.unit_m, mesh.points[tri, 1] * model.unit_m  # (m, 3) m
+    roll, back = [1, 2, 0], [2, 0, 1]
+    b = y[:, roll] - y[:, back]                    # b_i = y_j − y_k, c_i = x_k − x_j
+    c = x[:, back] - x[:, roll]
     area = 0.5 * (b[:, 0] * c[:, 1] - b[:, 1] * c[:, 0])
     if model.axisymmetric:
         # ∫ f 2πr dA: exact for the constant gradient product with r̄ at the centroid;
         # ∫ φi 2πr dA = 2π A (3 r̄ + r_i)/12.
         rbar = x.mean(axis=1)
-        weight = 2 * np.pi * rbar
         source = 2 * np.pi * area[:, None] * (3 * rbar[:, None] + x) / 12
+        volume = source.sum(axis=1)
     else:
-        weight = np.full(len(tri), model.depth_m)
-        source = (area * model.depth_m / 3)[:, None].repeat(3, axis=1)
-    scale = (weight / (4 * area))[:, None, None]
-    kx_unit = b[:, :, None] * b[:, None, :] * scale
-    ky_unit = c[:, :, None] * c[:, None, :] * scale
-
+        volume = area * model.depth_m
+        source = np.broadcast_to((volume / 3)[:, None], (len(tri), 3))
+    del x, y
+    b /= (2 * area)[:, None]
+    c /= (2 * area)[:, None]
     edge_load, edge_mass = _edge_terms(mesh, mesh.edges)
     _, iface_mass = _edge_terms(mesh, mesh.interface_a)
-
-    return Layout(kx_unit=kx_unit, ky_unit=ky_unit, source=source, volume=source.sum(axis=1),
-                  edge_load=edge_load, edge_mass=edge_mass, iface_mass=iface_mass,
-                  grad_b=b / (2 * area)[:, None], grad_c=c / (2 * area)[:, None],
-                  triangles=tri, edges=mesh.edges, interface_a=mesh.interface_a,
-                  interface_b=mesh.interface_b, n=len(mesh.points))
+    return Layout(source=source, volume=volume, edge_load=edge_load, edge_mass=edge_mass,
+                  iface_mass=iface_mass, grad_b=b, grad_c=c, triangles=tri, edges=mesh.edges,
+                  interface_a=mesh.interface_a, interface_b=mesh.interface_b,
+                  n=len(mesh.points))
 
 
 def _iface_blocks(ia: np.ndarray, ib: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -224,20 +260,16 @@ class System:
     def other_data(self) -> np.ndarray:
         """Convection, linearised radiation and interface terms as pattern data."""
         L = self.layout
-        slots = [L.edge_slots]
-        if len(self.mesh.interface_id):
-            slots.append(L.iface_slots)
+        slots = [L.edge_slots] + ([L.iface_slots] if len(self.mesh.interface_id) else [])
         return L.pattern.data(np.concatenate(slots), self.other_values)
 
     @cached_property
     def gradient(self) -> sp.csr_matrix:
-        """(2m, n) CSR mapping nodal temperatures to triangle gradients (x rows, then y)."""
-        L = self.layout
-        m = len(L.triangles)
-        rows = np.concatenate([np.repeat(np.arange(m), 3), np.repeat(np.arange(m, 2 * m), 3)])
-        cols = np.concatenate([L.triangles.ravel(), L.triangles.ravel()])
+        """(2m, n) CSR: nodal temperatures to triangle gradients (x rows, then y)."""
+        L, m = self.layout, len(self.layout.triangles)
         return sp.csr_matrix((np.concatenate([L.grad_b.ravel(), L.grad_c.ravel()]),
-                              (rows, cols)), shape=(2 * m, L.n))
+                              np.tile(L.triangles.ravel(), 2), np.arange(0, 6 * m + 1, 3)),
+                             shape=(2 * m, L.n))
 
     def gradients(self, T: np.ndarray) -> np.ndarray:
         """Gradient of T in each triangle, (m, 2) K/m."""
@@ -313,16 +345,21 @@ class System:
         k(T): ∂(K_e T_e)_i/∂T_j = K_e,ij + (k'x (Kx_e T_e)_i + k'y (Ky_e T_e)_i)/3.
         Radiation, T⁴ interpolated between nodes: R_i += εσ Σ_j M_ij (T_j⁴ − T_sur⁴), kelvin.
         """
-        L, tri = self.layout, self.mesh.triangles
+        L = self.layout
         kx, ky, dkx, dky = self.conductivity(T)
-        ke = kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit
-        te = T[tri]
-        kxt = np.einsum("eij,ej->ei", L.kx_unit, te)
-        kyt = np.einsum("eij,ej->ei", L.ky_unit, te)
-        je = ke + ((dkx[:, None] * kxt + dky[:, None] * kyt)[:, :, None] / 3).repeat(3, axis=2)
+        ke = L.element_matrices(kx, ky)
         P = L.pattern
         K = P.matrix(self.other_data + P.data(L.tri_slots, ke.ravel()))
-        J = P.matrix(self.other_data + P.data(L.tri_slots, je.ravel()))
+        if np.any(dkx) or np.any(dky):
+            # (Kx_e T_e)_i = V b_i (b·T_e): the unit matrices times T_e without forming them.
+            gx, gy = self.gradients(T).T
+            v = L.volume / 3
+            ke += (L.grad_b * (dkx * gx * v)[:, None]
+                   + L.grad_c * (dky * gy * v)[:, None])[:, :, None]
+            J = P.matrix(self.other_data + P.data(L.tri_slots, ke.ravel()))
+        else:
+            J = P.matrix(K.data.copy())
+        del ke
         R = K @ T - self.F
         rad = self.edge["emissivity"] > 0
         if rad.any():
@@ -341,33 +378,20 @@ class System:
 
 
 def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
-    """Assemble conduction, sources, boundary and interface terms.
+    """Assemble conduction, sources, boundary and interface terms of ``mesh`` (from
+    :func:`~heat2d.mesh.build_mesh`), with a ``layout`` built earlier for this mesh
+    (reused across variants) or a new one.
 
-    Parameters
-    ----------
-    mesh
-        From :func:`~heat2d.mesh.build_mesh`.
-    layout
-        A layout built earlier for this mesh (reused across variants); built if None.
-
-    Raises
-    ------
-    NoHeatPathError
-        A connected body has neither a fixed-temperature nor a convection boundary.
+    Raises :class:`NoHeatPathError` where a connected body has neither a fixed-temperature
+    nor a convection boundary.
     """
     model = mesh.model
     L = layout or build_layout(mesh)
-    n = len(mesh.points)
-    tri = mesh.triangles
+    n, tri = len(mesh.points), mesh.triangles
     kx = np.array([mt.kx for mt in model.materials])[mesh.triangle_material]
     ky = np.array([mt.ky for mt in model.materials])[mesh.triangle_material]
 
-    # K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV
-    conduction = (kx[:, None, None] * L.kx_unit + ky[:, None, None] * L.ky_unit).ravel()
-    values = []
-    edges = mesh.edges
-    rows = [np.repeat(tri, 3, axis=1).ravel(), _block_rows(edges, edges)]
-    cols = [np.tile(tri, (1, 3)).ravel(), _block_cols(edges, edges)]
+    rows, cols = [_block_rows(mesh.edges, mesh.edges)], [_block_cols(mesh.edges, mesh.edges)]
     # F_i += ∫ q̇ φi dV
     qdot = _generation(mesh, L.volume)
     F = np.bincount(tri.ravel(), (qdot[:, None] * L.source).ravel(), minlength=n)
@@ -380,7 +404,7 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
     # with h_r = 4εσT_sur³ and the surroundings carried in F (Newton corrects it later).
     h_rad = 4 * edge["emissivity"] * SIGMA * (edge["surroundings"] + KELVIN) ** 3
     h_total = edge["h"] + h_rad
-    values.append((h_total[:, None, None] * L.edge_mass).ravel())
+    values = [(h_total[:, None, None] * L.edge_mass).ravel()]
     t_far = (edge["h"] * edge["ambient"] + h_rad * edge["surroundings"])
     F += np.bincount(mesh.edges.ravel(), (t_far[:, None] * L.edge_load).ravel(), minlength=n)
     # interface: ∫ (T_a − T_b)(φ_a − φ_b)/R″ dS  →  [[M, −M], [−M, M]]/R″
@@ -389,20 +413,19 @@ def assemble(mesh: Mesh, *, layout: Layout | None = None) -> System:
         m = g[:, None, None] * L.iface_mass
         values.append(np.concatenate([m.ravel(), -m.ravel(), -m.ravel(), m.ravel()]))
         r, c = _iface_blocks(mesh.interface_a, mesh.interface_b)
-        rows.append(r)
-        cols.append(c)
+        rows, cols = rows + [r], cols + [c]
     other = np.concatenate(values)
+    # K_e = ∫ (kx ∂φi/∂x ∂φj/∂x + ky ∂φi/∂y ∂φj/∂y) dV
     if "pattern" in L.__dict__:
         # A layout that has its pattern already (a variant, a nonlinear model): refill.
         P = L.pattern
         slots = [L.edge_slots, L.iface_slots] if len(mesh.interface_id) else [L.edge_slots]
-        K = P.matrix(P.data(L.tri_slots, conduction) + P.data(np.concatenate(slots), other))
+        K = P.matrix(P.data(L.tri_slots, L.element_matrices(kx, ky).ravel())
+                     + P.data(np.concatenate(slots), other))
     else:
-        # COO → CSR sums the element contributions (scipy's compiled loop); the pattern
-        # with its slots is built only when a later matrix of this mesh needs it.
-        K = sp.csr_matrix((np.concatenate([conduction, other]),
-                           (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
-        K.sum_duplicates()
+        # COO → CSR sums the contributions (scipy's compiled loop); the pattern with its
+        # slots is built only when a later matrix of this mesh needs it.
+        K = L.conduction(kx, ky, other, np.concatenate(rows), np.concatenate(cols))
 
     fixed, fixed_value, warnings = _fixed(mesh, edge)
     _check_heat_paths(mesh, K, fixed, h_total > 0)
@@ -416,14 +439,12 @@ BOUNDARY_VALUES = ("temperature", "heat_flux", "h", "ambient", "emissivity", "su
 
 def edge_values(mesh: Mesh) -> dict[str, np.ndarray]:
     """Boundary values per exposed edge (0 where they do not apply; NaN temperature)."""
-    bcs = mesh.model.boundaries
-    owner = mesh.edge_boundary
     out = {}
     for key in BOUNDARY_VALUES:
-        vals = [getattr(bc, key) for bc in bcs]
         fill = np.nan if key == "temperature" else 0.0
-        table = np.array([fill if v is None else v for v in vals] + [fill], dtype=float)
-        out[key] = table[owner]
+        table = [fill if getattr(bc, key) is None else getattr(bc, key)
+                 for bc in mesh.model.boundaries]
+        out[key] = np.array(table + [fill], dtype=float)[mesh.edge_boundary]
     out["flux"] = out.pop("heat_flux")
     return out
 

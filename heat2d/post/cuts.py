@@ -97,7 +97,7 @@ def _crossing(solution, w: np.ndarray) -> float:
     we = w[tri]
     band = we.min(axis=1) != we.max(axis=1)
     kx, ky, _, _ = system.conductivity(T)
-    ke = kx[band, None, None] * L.kx_unit[band] + ky[band, None, None] * L.ky_unit[band]
+    ke = L.element_matrices(kx[band], ky[band], band)
     q = float(np.einsum("ei,eij,ej->", we[band], ke, T[tri[band]]))
     if len(mesh.interface_id):
         ia, ib = mesh.interface_a, mesh.interface_b
