@@ -251,4 +251,20 @@ def breaches(outcome: Outcome, folder: Path, command: str) -> list[str]:
         summary = _strict_json(out_dir / "summary.json")
     except ValueError as exc:
         return found + [f"non-finite summary.json: {exc}"]
+    if summary.get("mode") == "transient":
+        return found + _transient_breaches(summary, out_dir)
     return found + _balance_breaches(summary)
+
+
+def _transient_breaches(summary: dict, out_dir: Path) -> list[str]:
+    """A transient run: its time series is there and its energy over the run closes
+    (energy in = stored + heat out, docs/model-format.md "What a transient run writes")."""
+    out = []
+    if not (out_dir / "transient.csv").is_file():
+        out.append("missing outputs on a transient run: ['transient.csv']")
+    eb = summary["energy_balance"]
+    scale = max(abs(eb["energy_in_j"]), abs(eb["stored_j"]), abs(eb["heat_out_j"]))
+    gap = eb["energy_in_j"] - eb["stored_j"] - eb["heat_out_j"]
+    if scale > 0 and not abs(gap) <= BALANCE_TOLERANCE * scale:
+        out.append(f"energy balance over the run open by {gap / scale:.3g}")
+    return out

@@ -243,6 +243,40 @@ def models(draw: st.DrawFn) -> Doc:
     return doc
 
 
+@st.composite
+def transient_models(draw: st.DrawFn) -> Doc:
+    """A small valid model made transient: every material gets a capacity, a powered
+    shape (if any) may get a pulse train or a table, and a [transient] section."""
+    doc = draw(models())
+    for m in doc["materials"].values():
+        m["density"] = draw(_num(100, 9000, 0))
+        m["specific_heat"] = draw(_num(100, 2000, 0))
+    end = draw(st.sampled_from([0.01, 1.0, 100.0]))
+    section: Doc = {"end": end}
+    if draw(st.booleans()):
+        section["first"] = end * draw(st.sampled_from([1e-6, 1e-4, 1e-2]))
+        section["per_decade"] = draw(st.integers(1, 10))
+    elif draw(st.booleans()):
+        section["every"] = end / draw(st.integers(2, 40))
+    section["initial"] = draw(st.sampled_from(["steady", 25.0, 80.0]))
+    section["zth"] = draw(st.booleans())
+    doc["transient"] = section
+    powered = [sh for sh in doc.get("shape", []) if "power" in sh]
+    if powered and draw(st.booleans()):
+        shape = powered[0]
+        width = end * draw(st.sampled_from([0.01, 0.1, 0.3]))
+        if draw(st.booleans()):
+            pulse: Doc = {"power": draw(_num(0.1, 10)), "width": width}
+            if draw(st.booleans()):
+                pulse["period"] = width * draw(st.sampled_from([2, 5, 10]))
+                pulse["count"] = draw(st.integers(1, 5))
+            shape["power_pulse"] = pulse
+        else:
+            shape.pop("power")
+            shape["power_table"] = [[0, 0], [width, draw(_num(0.1, 10))], [2 * width, 0]]
+    return doc
+
+
 # -- mutations --------------------------------------------------------------------------
 
 HUGE_INT = 10 ** 400

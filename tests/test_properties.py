@@ -36,7 +36,14 @@ from tests.contract import (
     run_case,
     warm_up,
 )
-from tests.strategies import model_texts, models, mutate, mutated_texts, to_toml
+from tests.strategies import (
+    model_texts,
+    models,
+    mutate,
+    mutated_texts,
+    to_toml,
+    transient_models,
+)
 
 ROOT = Path(__file__).resolve().parents[1]
 TIMEOUT_S = 40.0  # a child still running then is a hang (the deadline is the profile's)
@@ -119,6 +126,16 @@ def test_valid_models_keep_the_contract(text, command):
 @settings(max_examples=max(settings().max_examples * 2, 1))
 def test_mutated_models_keep_the_contract(text, command):
     assert_contract(text, command)
+
+
+@given(doc=transient_models(), data=st.data())
+@settings(max_examples=max(settings().max_examples // 4, 1))  # a march and its files each
+def test_transient_models_keep_the_contract(doc, data):
+    # Valid transient models, and the same with one mutation (a bad time, table, pulse or
+    # capacity among them): exit 0 with a closed energy balance over the run, or 2.
+    if data.draw(st.booleans()):
+        doc = data.draw(mutate(doc))
+    assert_contract(to_toml(doc), "run")
 
 
 @given(text=model_texts())
