@@ -263,7 +263,8 @@ def _transient_breaches(summary: dict, out_dir: Path) -> list[str]:
     if not (out_dir / "transient.csv").is_file():
         out.append("missing outputs on a transient run: ['transient.csv']")
     eb = summary["energy_balance"]
-    scale = max(abs(eb["energy_in_j"]), abs(eb["stored_j"]), abs(eb["heat_out_j"]))
+    scale = max(abs(eb["energy_in_j"]), abs(eb["stored_j"]), abs(eb["heat_out_j"]),
+                eb.get("heat_through_j", 0.0))
     gap = eb["energy_in_j"] - eb["stored_j"] - eb["heat_out_j"]
     if scale > 0 and not abs(gap) <= BALANCE_TOLERANCE * scale:
         out.append(f"energy balance over the run open by {gap / scale:.3g}")

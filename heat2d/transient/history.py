@@ -118,6 +118,7 @@ class Recorder:
         self.rest = ~self.is_fixed & (mesh.edge_boundary >= 0)
         self.energy_in = 0.0
         self.energy_out = 0.0
+        self.energy_gross = 0.0
         self.steps: list[float] = []
         self.flags: list[bool] = []
         self.ends: list[float] = []
@@ -182,7 +183,7 @@ class Recorder:
         rows = self.rows
         stored = np.array([r["stored"] for r in rows])
         e_in, e_out, e_st = self.energy_in, self.energy_out, float(stored[-1])
-        scale = max(abs(e_in), abs(e_out), abs(e_st), 1e-300)
+        scale = max(abs(e_in), abs(e_out), abs(e_st), self.energy_gross, 1e-300)
         ns = len(model.shapes)
         names = tuple(sh.name for sh in model.shapes)
         peak = np.where(np.isfinite(self.peak), self.peak, np.nan)
@@ -199,6 +200,7 @@ class Recorder:
             steps=np.array(self.steps), step_ends=np.array(self.ends),
             error=(np.full(len(rows), np.nan) if error is None else error),
             energy={"input_j": e_in, "stored_j": e_st, "out_j": e_out,
+                    "through_j": self.energy_gross,
                     "relative_error": abs(e_in - e_st - e_out) / scale},
             peak_max=peak, peak_time=self.peak_time.copy(),
             peak_error=(np.full(ns, np.nan) if peak_error is None else peak_error),

@@ -403,7 +403,12 @@ def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
     lefts = (None, None, h)[-len(points):]
     e_in = h * sum(w * drive.total_power(tp, lf, Tp)      # I²R depends on the state
                    for (tp, Tp, _, w), lf in zip(points, lefts, strict=True))
-    e_edge = h * sum(w * rec.edge_out(Tp, tp).sum() for tp, Tp, _, w in points)
+    edges = [rec.edge_out(Tp, tp) for tp, Tp, _, _ in points]
+    e_edge = h * sum(w * q.sum() for q, (_, _, _, w) in zip(edges, points, strict=True))
     e_fixed = -(H1[fixed] - Hn[fixed]).sum() - h * sum(w * Rp[fixed].sum()
                                                        for _, _, Rp, w in points)
+    # The heat through the boundaries in either direction: the scale of the balance when
+    # heat comes in through one boundary and leaves through another (nothing generated).
+    rec.energy_gross += h * sum(w * np.abs(q).sum() + w * np.abs(Rp[fixed]).sum()
+                                for q, (_, _, Rp, w) in zip(edges, points, strict=True))
     return T1, err, e_in, e_edge + e_fixed, (None if euler else Tg)

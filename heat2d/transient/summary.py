@@ -79,11 +79,14 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
     energy = history.energy
     end = float(history.times[-1])
     balance = {"energy_in_j": energy["input_j"], "stored_j": energy["stored_j"],
-               "heat_out_j": energy["out_j"], "relative_error": energy["relative_error"],
+               "heat_out_j": energy["out_j"], "heat_through_j": energy.get("through_j", 0.0),
+               "relative_error": energy["relative_error"],
                "power_in_w": energy["input_j"] / end, "heat_out_w": energy["out_j"] / end,
                "stored_w": energy["stored_j"] / end,
                "note": "over the whole run: power_in_w, heat_out_w and stored_w are means "
-                       "over its length; energy in = stored + heat out"}
+                       "over its length; energy in = stored + heat out; relative_error "
+                       "over the largest of these and heat_through_j (the heat through "
+                       "the boundaries either way)"}
     if abs(energy["relative_error"]) > 1e-6:
         warnings.append(f"the energy balance over the run closes only to "
                         f"{energy['relative_error']:.1e}")
