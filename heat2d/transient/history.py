@@ -22,6 +22,11 @@ from ..post.resistance import share_reactions
 from ..post.results import probe_weights
 
 
+ROUNDOFF = 1e4 * float(np.finfo(float).eps)
+"""Relative round-off of the heat content: an energy gap below it (times the heat
+content Σ Cᵢ max(1 K, |T|)) is round-off, and the run is balanced (an unpowered run at
+one temperature has nothing else)."""
+
 @dataclass(frozen=True, repr=False, eq=False)
 class History:
     """Figures of a transient at its report times (the first row is t = 0).
@@ -119,6 +124,10 @@ class Recorder:
         self.energy_in = 0.0
         self.energy_out = 0.0
         self.energy_gross = 0.0
+        # Round-off of the stored heat Σ Cᵢ (Tᵢ − T0ᵢ): a few thousand ulps of the heat
+        # content at the run's temperatures (an unpowered uniform run balances at it).
+        heat = capacity(system, T0, rho_c)[0].sum()
+        self.roundoff = ROUNDOFF * heat * max(1.0, float(np.abs(T0).max()))
         self.steps: list[float] = []
         self.flags: list[bool] = []
         self.ends: list[float] = []
@@ -184,6 +193,8 @@ class Recorder:
         stored = np.array([r["stored"] for r in rows])
         e_in, e_out, e_st = self.energy_in, self.energy_out, float(stored[-1])
         scale = max(abs(e_in), abs(e_out), abs(e_st), self.energy_gross, 1e-300)
+        gap = e_in - e_st - e_out
+        relative = 0.0 if abs(gap) <= self.roundoff else abs(gap) / scale
         ns = len(model.shapes)
         names = tuple(sh.name for sh in model.shapes)
         peak = np.where(np.isfinite(self.peak), self.peak, np.nan)
@@ -200,8 +211,8 @@ class Recorder:
             steps=np.array(self.steps), step_ends=np.array(self.ends),
             error=(np.full(len(rows), np.nan) if error is None else error),
             energy={"input_j": e_in, "stored_j": e_st, "out_j": e_out,
-                    "through_j": self.energy_gross,
-                    "relative_error": abs(e_in - e_st - e_out) / scale},
+                    "through_j": self.energy_gross, "roundoff_j": self.roundoff,
+                    "relative_error": relative},
             peak_max=peak, peak_time=self.peak_time.copy(),
             peak_error=(np.full(ns, np.nan) if peak_error is None else peak_error),
             shape_names=names, probe_names=tuple(p.name for p in model.probes),

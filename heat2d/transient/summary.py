@@ -80,6 +80,7 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
     end = float(history.times[-1])
     balance = {"energy_in_j": energy["input_j"], "stored_j": energy["stored_j"],
                "heat_out_j": energy["out_j"], "heat_through_j": energy.get("through_j", 0.0),
+               "roundoff_j": energy.get("roundoff_j", 0.0),
                "relative_error": energy["relative_error"],
                "power_in_w": energy["input_j"] / end, "heat_out_w": energy["out_j"] / end,
                "stored_w": energy["stored_j"] / end,
