@@ -96,6 +96,10 @@ def parse_sets(items: Sequence[str]) -> dict[str, str]:
     return out
 
 
+PROGRESS_S = 5.0
+"""Seconds between the progress lines of one long stage."""
+
+
 class Announcer:
     """Prints a stage's name once it has run for SLOW_STAGE_S, and its time when it ends."""
 
@@ -106,6 +110,13 @@ class Announcer:
         self.shown = False
 
     def __call__(self, stage: str, event: str) -> None:
+        if event == "progress":
+            # Within a long stage: ``stage`` says how far it is; at most every PROGRESS_S.
+            now = time.perf_counter()
+            if self.shown and now - getattr(self, "said", 0.0) >= PROGRESS_S:
+                self.said = now
+                print(f"  {stage}", file=self.stream, flush=True)
+            return
         if event == "start":
             self.started, self.shown = time.perf_counter(), False
             self.timer = threading.Timer(SLOW_STAGE_S, self._show, args=(stage,))

@@ -34,7 +34,8 @@ from .network import cauer, foster_fit, modal_network
 from .periodic import duty_family, periodic_peak
 
 Progress = Callable[[str, str], None]
-"""Called as progress(stage, event) with event "start", then "end" or "failed"."""
+"""Called as progress(stage, event) with event "start", then "end" or "failed"; within the
+march also as progress("march at t = ... s of ... s", "progress") after each step."""
 
 MODES = 12
 """Eigenpairs of the modal network (the slowest modes: the check of the fitted network
@@ -167,9 +168,13 @@ def run_transient(model, *, method: str = "auto", refine: float = 1.0,
     times = report_times(system, settings)
     initial = "steady" if settings.initial == "steady" else float(settings.start_temperature)
     cache = FactorCache()           # the marches of the run share their factorizations
+    def advance(t: float, end: float) -> None:
+        if progress:
+            progress(f"march at t = {t:.3g} s of {end:g} s", "progress")
+
     history = stage("march", march, system, times=times, initial=initial,
                     tolerance=settings.tolerance, store_at=settings.snapshot_times(),
-                    method=method, check=check, cache=cache)
+                    method=method, check=check, progress=advance, cache=cache)
     zth_on = settings.zth if zth is None else zth
     curves, networks, duty, periodic = {}, {}, {}, {}
     if zth_on:
