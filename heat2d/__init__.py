@@ -65,5 +65,6 @@ def __getattr__(name: str):
 __all__ = [
     "GeometryError", "Heat2dError", "MeshError", "Model", "ModelError", "NoHeatPathError",
     "Result",
-    "SolveError", "ThermalRunawayError", "__version__", "from_dict", "load", "parse", "run", "solve",
+    "SolveError", "ThermalRunawayError", "__version__", "from_dict", "load", "parse", "run",
+    "solve",
 ]

@@ -46,7 +46,6 @@ def run_compare_command(args: argparse.Namespace) -> int:
         EXIT_OK; bad input raises ModelError (exit 2, nothing written).
     """
     from ..compare import compare_sides, format_comparison, load_side, write_comparison
-
     from ..transient.run import run_transient
 
     a = load_side(args.a, label="A", method=args.method, transient=run_transient)

@@ -21,7 +21,6 @@ from ..fem.capacity import capacity, stored_heat, varies
 from ..post.resistance import share_reactions
 from ..post.results import probe_weights
 
-
 ROUNDOFF = 1e4 * float(np.finfo(float).eps)
 """Relative round-off of the heat content: an energy gap below it (times the heat
 content Σ Cᵢ max(1 K, |T|)) is round-off, and the run is balanced (an unpowered run at
