@@ -21,10 +21,11 @@ from ..fem.capacity import capacity, stored_heat, varies
 from ..post.resistance import share_reactions
 from ..post.results import probe_weights
 
-ROUNDOFF = 1e4 * float(np.finfo(float).eps)
-"""Relative round-off of the heat content: an energy gap below it (times the heat
-content Σ Cᵢ max(1 K, |T|)) is round-off, and the run is balanced (an unpowered run at
-one temperature has nothing else)."""
+ROUNDOFF = 1e-9
+"""Relative accuracy of the solves (a steady start is exact to about 1e-11 of its
+temperatures; relaxing that residue moves heat): an energy gap below it times (heat content Σ Cᵢ + boundary
+conductance × run length) × max(1 K, |T|) is round-off, and the run is balanced (an
+unpowered run at one temperature has nothing else)."""
 
 @dataclass(frozen=True, repr=False, eq=False)
 class History:
@@ -49,6 +50,7 @@ class History:
         and when; peak_error : (S,) K, its time-step error estimate (NaN unless
         ``check=True``)
     final : (n,) °C, the nodal field at the end
+    coldest : °C, the lowest nodal temperature over the run (start and step ends)
     hottest : (n,) °C, the nodal field at the step end where the largest nodal
         temperature of the run occurred; hottest_time : s, that step end
     stats : counts of factorizations, solves, rejected steps, the solver used
@@ -77,6 +79,7 @@ class History:
     final: np.ndarray | None = None
     hottest: np.ndarray | None = None
     hottest_time: float = 0.0
+    coldest: float = np.nan
 
     def peaks(self) -> dict[str, dict[str, float]]:
         """Per non-void shape: the largest temperature over the run (°C), when (s), and
@@ -115,6 +118,7 @@ class Recorder:
         self.peak = np.full(ns, -np.inf)
         self.peak_time = np.zeros(ns)
         self.hot_max = -np.inf
+        self.coldest = np.inf
         self.hottest: np.ndarray | None = None
         self.hottest_time = 0.0
         self.probe_w = [probe_weights(mesh, p.x, p.y) for p in model.probes]
@@ -126,7 +130,14 @@ class Recorder:
         # Round-off of the stored heat Σ Cᵢ (Tᵢ − T0ᵢ): a few thousand ulps of the heat
         # content at the run's temperatures (an unpowered uniform run balances at it).
         heat = capacity(system, T0, rho_c)[0].sum()
-        self.roundoff = ROUNDOFF * heat * max(1.0, float(np.abs(T0).max()))
+        # ... and of the heat flows over the run: the conductance to the boundaries
+        # (convection ∫h dS, fixed nodes' diagonal) times the temperatures, times its length.
+        edge_g = float((np.nan_to_num(system.edge["h"]) * system.layout.edge_load.sum(axis=1)
+                        ).sum())
+        fixed_g = float(np.abs(system.K.diagonal()[system.fixed]).sum())
+        end = float(self.times[-1]) if len(self.times) else 0.0
+        self.roundoff = ROUNDOFF * max(1.0, float(np.abs(T0).max())) * (
+            heat + (edge_g + fixed_g) * end)
         self.steps: list[float] = []
         self.flags: list[bool] = []
         self.ends: list[float] = []
@@ -146,6 +157,7 @@ class Recorder:
         """Step-end peaks of each shape, and the field of the hottest moment (copied only
         when a new overall max appears)."""
         top = float(T.max()) if len(T) else -np.inf
+        self.coldest = min(self.coldest, float(T.min())) if len(T) else self.coldest
         if top > self.hot_max or self.hottest is None:
             self.hot_max, self.hottest, self.hottest_time = top, T.copy(), t
         for i, nodes in enumerate(self.shape_nodes):
@@ -217,4 +229,5 @@ class Recorder:
             shape_names=names, probe_names=tuple(p.name for p in model.probes),
             boundary_names=tuple(b.name for b in model.boundaries), stats=stats,
             final=final, hottest=(final if self.hottest is None else self.hottest),
-            hottest_time=float(self.hottest_time))
+            hottest_time=float(self.hottest_time),
+            coldest=float(min(self.coldest, float(final.min()))))

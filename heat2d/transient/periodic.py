@@ -108,7 +108,9 @@ def duty_family(z, widths, duties) -> np.ndarray:
     """Peak rise per watt (K/W) against pulse width for several duty cycles.
 
     Returns an array (len(duties) + 1, len(widths)): the first row is the single pulse,
-    Z(tp); row i + 1 the periodic steady-state peak at duty D = duties[i] (period tp/D).
+    Z(tp); row i + 1 the periodic steady-state peak at duty D = duties[i] (period tp/D),
+    NaN where the superposition sum does not converge (a pulse many decades shorter than
+    the slowest time constant).
     """
     fz = _callable(z)
     widths = np.asarray(widths, dtype=float).ravel()
@@ -119,5 +121,8 @@ def duty_family(z, widths, duties) -> np.ndarray:
     out[0] = fz(widths)
     for i, d in enumerate(duties):
         for j, tp in enumerate(widths):
-            out[i + 1, j] = periodic_peak(fz, 1.0, tp, tp / d)
+            try:
+                out[i + 1, j] = periodic_peak(fz, 1.0, tp, tp / d)
+            except SolveError:        # pulses far shorter than the network's slowest τ
+                out[i + 1, j] = np.nan
     return out

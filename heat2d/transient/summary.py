@@ -3,7 +3,7 @@
 The keys every run writes keep their meaning, read over time:
 
 * ``temperature.max``, ``hot_spot``: the hottest moment of the run (its time in
-  ``time_s``); ``temperature.min`` the coldest nodal value at that moment or at the start;
+  ``time_s``); ``temperature.min`` the coldest nodal value over the run;
 * ``shapes[NAME]``: ``max`` the shape's peak over the run (with ``time_s`` and the
   time-step error ``max_error``), ``mean`` and ``min`` at the hottest moment of the run;
 * ``boundaries[NAME].heat_out_w``: at the end of the run, with ``heat_out_peak_w``;
@@ -103,8 +103,7 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
                   "powers_and_heat_flows_for": ("full revolution (axisymmetric)"
                                                 if model.axisymmetric else
                                                 f"depth {model.depth:g} {model.length_unit}")},
-        "temperature": {"max": float(hot.max()), "min": float(min(hot.min(),
-                                                                   np.nanmin(history.shape_max[0]))),
+        "temperature": {"max": float(hot.max()), "min": float(history.coldest),
                         "time_s": hot_time},
         "hot_spot": {"x": float(mesh.points[node, 0]), "y": float(mesh.points[node, 1]),
                      "temperature": float(hot[node]), "time_s": hot_time,
@@ -158,10 +157,13 @@ def _transient(result) -> dict[str, Any]:
         "smallest_step_s": float(np.min(h.steps)), "largest_step_s": float(np.max(h.steps)),
         "initial": st.initial if isinstance(st.initial, str) else float(st.initial),
         "tolerance_k": st.tolerance,
-        "solver": {k: v for k, v in stats.items() if isinstance(v, int | float | str)},
+        # The history march's own counts; the check march on halved steps reuses its
+        # factorizations (its counts under "check_march").
+        "solver": _counts(stats.get("coarse", stats)),
         "time_step_error_k": (_finite(float(np.nanmax(h.error)))
                               if np.isfinite(h.error).any() else None),
         "peaks": h.peaks(),
+        **({"check_march": _counts(stats)} if "coarse" in stats else {}),
         "energy_balance": dict(h.energy),
         "snapshot_times_s": [float(t) for t in h.snapshot_times],
     }
@@ -186,8 +188,8 @@ def _transient(result) -> dict[str, Any]:
     out["zth"] = zth
     out["periodic"] = result.periodic
     out["duty"] = {name: {"widths_s": d["widths"].tolist(), "duties": list(d["duties"]),
-                          "single_pulse_k_per_w": d["peaks"][0].tolist(),
-                          "k_per_w": {f"{duty:g}": d["peaks"][i + 1].tolist()
+                          "single_pulse_k_per_w": _list(d["peaks"][0]),
+                          "k_per_w": {f"{duty:g}": _list(d["peaks"][i + 1])
                                       for i, duty in enumerate(d["duties"])}}
                    for name, d in result.duty.items()}
     return out
@@ -212,6 +214,15 @@ def _peak_power(shape) -> float:
     if shape.schedule is not None:
         return float(shape.schedule.peak)
     return float(shape.power or 0.0)
+
+
+def _counts(stats: dict) -> dict:
+    return {k: v for k, v in stats.items() if isinstance(v, int | float | str)}
+
+
+def _list(values) -> list:
+    """Numbers as a JSON list, None where a value is not finite."""
+    return [float(v) if np.isfinite(v) else None for v in values]
 
 
 def _finite(value):
