@@ -208,3 +208,29 @@ def test_a_periodic_peak_over_the_limit_is_warned(tmp_path):
     periodic = summary["transient"]["periodic"]["pad"]["peak"]
     assert periodic > 200 > summary["limits"]["pad"]["max"]
     assert any("repeated for ever" in w and "pad" in w for w in summary["warnings"])
+
+
+def test_a_first_time_at_the_lower_limit_runs(tmp_path):
+    # first = 1e-9 s (the documented lower limit): the duty family's shortest widths have
+    # no converging periodic sum and are left out (null), the run itself succeeds.
+    path = tmp_path / "tiny.toml"
+    path.write_text(transient_board(extra=TRANSIENT.replace("first = 1e-3", "first = 1e-9")),
+                    encoding="utf-8")
+    out = tmp_path / "out"
+    assert cli.main(["run", str(path), "--out", str(out), "--quiet"]) == 0
+    duty = json.loads((out / "summary.json").read_text())["transient"]["duty"]["pad"]
+    assert duty["single_pulse_k_per_w"][0] > 0
+    assert all(v is None or v > 0 for row in duty["k_per_w"].values() for v in row)
+
+
+def test_an_unpowered_run_is_balanced(tmp_path):
+    # Nothing powered, started steady: every energy of the run is the solves' residue.
+    text = transient_board({'power = "power"\n': "", **{k: "" for k in PULSE}})
+    path = tmp_path / "cold.toml"
+    path.write_text(text.replace('power_pulse = { power = 5, width = 0.01, period = 0.05, '
+                                 'count = 3 }\n', ""), encoding="utf-8")
+    out = tmp_path / "out"
+    assert cli.main(["run", str(path), "--out", str(out), "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["energy_balance"]["energy_in_j"] == 0
+    assert not any("energy balance" in w for w in summary["warnings"])
