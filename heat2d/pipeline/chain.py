@@ -35,6 +35,28 @@ the results are computed, before the error estimate and the writers; a later use
 variant of a sweep with the same matrix) factorizes again."""
 
 
+def stage_runner(progress: Progress | None, timings: dict[str, float]):
+    """``stage(name, func, *args, **kwargs)``: calls func, records its time in
+    ``timings[name]`` and tells ``progress`` when it starts and ends (or fails)."""
+
+    def stage(name: str, func, *args, **kwargs):
+        if progress:
+            progress(name, "start")
+        start = time.perf_counter()
+        try:
+            value = func(*args, **kwargs)
+        except BaseException:
+            if progress:
+                progress(name, "failed")
+            raise
+        timings[name] = time.perf_counter() - start
+        if progress:
+            progress(name, "end")
+        return value
+
+    return stage
+
+
 def geometry_key(model: Model, refine: float = 1.0) -> tuple:
     """Everything the geometry and mesh depend on; equal keys mean a mesh can be reused."""
     return (
@@ -80,20 +102,7 @@ def run(model: Model, *, method: str = "auto", refine: float = 1.0,
     """
     timings: dict[str, float] = {}
 
-    def stage(name: str, func, *args, **kwargs):
-        if progress:
-            progress(name, "start")
-        start = time.perf_counter()
-        try:
-            value = func(*args, **kwargs)
-        except BaseException:
-            if progress:
-                progress(name, "failed")
-            raise
-        timings[name] = time.perf_counter() - start
-        if progress:
-            progress(name, "end")
-        return value
+    stage = stage_runner(progress, timings)
 
     check_outlines(model, refine=refine)                # circles: before the geometry
     old = reuse.solution if reuse is not None else None

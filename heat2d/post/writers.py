@@ -173,11 +173,7 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
     list of Path
         The files written (under ``out_dir`` as given).
     """
-    names = list(WRITERS) if formats is None else list(formats)
-    unknown = sorted(set(names) - set(WRITERS))
-    if unknown:
-        raise Heat2dError(f"unknown output format {unknown[0]!r} (choose from: "
-                          f"{', '.join(sorted(WRITERS))})")
+    names = chosen_formats(formats, WRITERS)
     stem = stem or result.model.stem
 
     def fill(folder: Path) -> list[str]:
@@ -195,6 +191,16 @@ def write(result: Result, out_dir: str | Path, *, formats: Iterable[str] | None 
         return files
 
     return write_folder(out_dir, fill)
+
+
+def chosen_formats(formats: Iterable[str] | None, known) -> list[str]:
+    """The output formats asked for (all of ``known`` when None), each checked."""
+    names = list(known) if formats is None else list(formats)
+    unknown = sorted(set(names) - set(known))
+    if unknown:
+        raise Heat2dError(f"unknown output format {unknown[0]!r} (choose from: "
+                          f"{', '.join(sorted(known))})")
+    return names
 
 
 class OutputFolderError(ModelError):

@@ -15,41 +15,24 @@ from __future__ import annotations
 import csv
 import json
 import math
-import re
 from collections.abc import Callable, Iterable
 from pathlib import Path
 from xml.sax.saxutils import quoteattr
 
 import numpy as np
 
-from ..errors import Heat2dError
-from ..post.writers import VTU_COMPRESS_LIMIT, is_output_name, write_folder
+from ..post.writers import VTU_COMPRESS_LIMIT, chosen_formats, is_output_name, write_folder
 from .plots import plot_duty, plot_history, plot_zth, powered_names, shape_columns
 
-__all__ = ["TRANSIENT_FILES", "TRANSIENT_WRITERS", "is_transient_output", "powered_names",
+__all__ = ["TRANSIENT_WRITERS", "is_transient_output", "powered_names",
            "shape_columns", "write_csv", "write_networks", "write_series", "write_summary",
            "write_transient"]
 
-TRANSIENT_FILES: tuple[str, ...] = (
-    "transient.csv", "rc_networks.csv", "rc_networks.json", "summary.json",
-    "{stem}_history.png", "{stem}_zth.png", "{stem}_duty.png",
-    "{stem}_NNNN.vtu", "{stem}.pvd",
-)
-"""File-name patterns of a transient run: ``{stem}`` is the file stem, ``NNNN`` the
-snapshot number (four digits or more)."""
-
-
-def _pattern(pattern: str) -> re.Pattern:
-    parts = [re.escape(p).replace("NNNN", r"\d{4,}") for p in pattern.split("{stem}")]
-    return re.compile(".+".join(parts), re.DOTALL)
-
-
-_PATTERNS = tuple(_pattern(p) for p in TRANSIENT_FILES)
-
-
 def is_transient_output(name: str) -> bool:
-    """Whether a file name is one a transient or steady run writes (for some stem)."""
-    return is_output_name(name) or any(p.fullmatch(name) for p in _PATTERNS)
+    """Whether a file name is one a transient or steady run writes (for some stem): the
+    names :func:`heat2d.post.writers.is_output_name` knows, which include the time series,
+    the RC networks, the VTU series and its ``.pvd``."""
+    return is_output_name(name)
 
 
 def _number(x) -> str:
@@ -262,11 +245,7 @@ def write_transient(result, out_dir: str | Path, *, formats: Iterable[str] | Non
     list of Path
         The files written (under ``out_dir`` as given).
     """
-    names = list(TRANSIENT_WRITERS) if formats is None else list(formats)
-    unknown = sorted(set(names) - set(TRANSIENT_WRITERS))
-    if unknown:
-        raise Heat2dError(f"unknown output format {unknown[0]!r} (choose from: "
-                          f"{', '.join(sorted(TRANSIENT_WRITERS))})")
+    names = chosen_formats(formats, TRANSIENT_WRITERS)
     stem = stem or result.model.stem
 
     def fill(folder: Path) -> list[str]:

@@ -23,9 +23,10 @@ from ..post.results import probe_weights
 
 ROUNDOFF = 1e-9
 """Relative accuracy of the solves (a steady start is exact to about 1e-11 of its
-temperatures; relaxing that residue moves heat): an energy gap below it times (heat content Σ Cᵢ + boundary
-conductance × run length) × max(1 K, |T|) is round-off, and the run is balanced (an
-unpowered run at one temperature has nothing else)."""
+temperatures; relaxing that residue moves heat). An energy gap below it times (heat
+content Σ Cᵢ + boundary conductance × run length) × max(1 K, |T|) is round-off, and the
+run is balanced (an unpowered run at one temperature has nothing else)."""
+
 
 @dataclass(frozen=True, repr=False, eq=False)
 class History:

@@ -26,6 +26,7 @@ from ..fem.capacity import capacity
 from ..fem.geometry import build_geometry
 from ..fem.mesh import build_mesh
 from ..fem.solver import solve
+from ..pipeline.chain import stage_runner
 from .forcing import forcing
 from .history import History
 from .linear import FactorCache
@@ -146,20 +147,7 @@ def run_transient(model, *, method: str = "auto", refine: float = 1.0,
         raise ValueError("the model has no [transient] section")
     timings: dict[str, float] = {}
 
-    def stage(name: str, func, *args, **kwargs):
-        if progress:
-            progress(name, "start")
-        start = time.perf_counter()
-        try:
-            value = func(*args, **kwargs)
-        except BaseException:
-            if progress:
-                progress(name, "failed")
-            raise
-        timings[name] = time.perf_counter() - start
-        if progress:
-            progress(name, "end")
-        return value
+    stage = stage_runner(progress, timings)
 
     check_outlines(model, refine=refine)
     geometry = stage("geometry", build_geometry, model, refine=refine)
