@@ -6,7 +6,7 @@ from collections.abc import Collection, Sequence
 
 from .sides import Side
 from .transient import format_transient_comparison
-from .wording import CAUTION
+from .wording import closing_notes
 
 COMBINATION = ("the sum of the two runs' error estimates (a conservative bound on the error "
                "of the difference)")
@@ -91,16 +91,7 @@ def caution(doc: dict, a: Side, b: Side) -> str:
     if doc["resistances"]:
         parts.append("The °C/W matrix carries no error estimate: its changes have no "
                      "error bars.")
-    for side in (a, b):
-        n = len(side.summary.get("warnings", []))
-        if n:
-            parts.append(f"{side.label} has {n} warning{'s' if n > 1 else ''}: see its "
-                         "summary.")
-    if a.summary["units"].get("powers_and_heat_flows_for") != \
-            b.summary["units"].get("powers_and_heat_flows_for"):
-        parts.append("Powers and heat flows are for a different depth in A and B.")
-    parts.append(CAUTION)
-    return " ".join(parts)
+    return " ".join(parts + closing_notes(a, b))
 
 
 def format_comparison(doc: dict) -> str:

@@ -16,7 +16,7 @@ from typing import Any
 from ..errors import ModelError
 from ..version import __version__
 from .sides import Side
-from .wording import CAUTION
+from .wording import closing_notes
 
 SAME_TIME_RTOL = 1e-9
 """Two hottest moments are the same time when they agree to this fraction of the run."""
@@ -219,16 +219,7 @@ def caution(doc: dict[str, Any], a: Side, b: Side) -> str:
                      "at its own run's hottest moment.")
     if doc["end_s"]["a"] != doc["end_s"]["b"]:
         parts.append("The runs end at different times: peaks cover different spans.")
-    for side in (a, b):
-        n = len(side.summary.get("warnings", []))
-        if n:
-            parts.append(f"{side.label} has {n} warning{'s' if n > 1 else ''}: see its "
-                         "summary.")
-    if a.summary["units"].get("powers_and_heat_flows_for") != \
-            b.summary["units"].get("powers_and_heat_flows_for"):
-        parts.append("Powers and heat flows are for a different depth in A and B.")
-    parts.append(CAUTION)
-    return " ".join(parts)
+    return " ".join(parts + closing_notes(a, b))
 
 
 def format_transient_comparison(doc: dict[str, Any]) -> str:
