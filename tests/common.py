@@ -49,13 +49,22 @@ at = [10, 0.8]
 """
 
 
-def board(replace: dict[str, str] | None = None, extra: str = "") -> str:
-    """BOARD with literal text replacements and extra TOML appended."""
-    text = BOARD
+def replaced(text: str, replace: dict[str, str] | None = None, extra: str = "") -> str:
+    """A model text with literal replacements (each must occur) and extra TOML appended."""
     for old, new in (replace or {}).items():
         assert old in text, old
         text = text.replace(old, new)
     return text + extra
+
+
+def board(replace: dict[str, str] | None = None, extra: str = "") -> str:
+    """BOARD with literal text replacements and extra TOML appended."""
+    return replaced(BOARD, replace, extra)
+
+
+def line_of(source: str, needle: str) -> int:
+    """The 1-based number of the first line of ``source`` holding ``needle``."""
+    return next(i + 1 for i, ln in enumerate(source.splitlines()) if needle in ln)
 
 
 def verify_model(name: str, **params: float | str) -> heat2d.Model:

@@ -10,6 +10,7 @@ import pytest
 
 import heat2d
 from heat2d import ModelError
+from tests.common import line_of, replaced
 
 # Copper: ρ = 1.724e-8 Ω·m at 20 °C, α = 0.00393 /K (the annealed-copper standard, as
 # tabulated in the CRC Handbook of Chemistry and Physics; from memory).
@@ -46,15 +47,7 @@ ambient = 40
 
 
 def text(replace: dict[str, str] | None = None, extra: str = "") -> str:
-    out = CURRENT
-    for old, new in (replace or {}).items():
-        assert old in out, old
-        out = out.replace(old, new)
-    return out + extra
-
-
-def line_of(source: str, needle: str) -> int:
-    return next(i + 1 for i, ln in enumerate(source.splitlines()) if needle in ln)
+    return replaced(CURRENT, replace, extra)
 
 
 def test_resistivity_and_current_read_back():

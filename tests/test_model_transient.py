@@ -12,6 +12,7 @@ import pytest
 import heat2d
 from heat2d import ModelError
 from heat2d.model.timeline import Schedule, TransientSettings
+from tests.common import line_of, replaced
 
 # A small board with capacities; copper 8933 kg/m³ and 385 J/(kg·K) (Incropera 6th ed.,
 # Table A.1, pure copper at 300 K); FR-4 1900 kg/m³ and 1150 J/(kg·K) (typical laminate
@@ -55,15 +56,7 @@ end = 100
 
 
 def text(replace: dict[str, str] | None = None, extra: str = "") -> str:
-    out = TRANSIENT
-    for old, new in (replace or {}).items():
-        assert old in out, old
-        out = out.replace(old, new)
-    return out + extra
-
-
-def line_of(source: str, needle: str) -> int:
-    return next(i + 1 for i, ln in enumerate(source.splitlines()) if needle in ln)
+    return replaced(TRANSIENT, replace, extra)
 
 
 # -- reading values back ---------------------------------------------------------------
