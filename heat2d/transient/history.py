@@ -107,8 +107,13 @@ class Recorder:
         self.snaps: list[np.ndarray] = []
         self.snap_times: list[float] = []
         ns = len(model.shapes)
-        self.shape_nodes = [np.unique(mesh.triangles[mesh.triangle_shape == i])
-                            for i in range(ns)]
+        # Each shape's nodes, one after another (a node may be in several shapes), for one
+        # reduceat per step instead of one max per shape.
+        pairs = np.unique(np.column_stack([np.repeat(mesh.triangle_shape, 3),
+                                           mesh.triangles.ravel()]), axis=0)
+        self.node_of_pair = pairs[:, 1]
+        self.has_nodes = np.bincount(pairs[:, 0], minlength=ns) > 0
+        self.starts = np.searchsorted(pairs[:, 0], np.flatnonzero(self.has_nodes))
         # ∫T dV per shape = W T (W: ∫φ_i dV of each shape's triangles), as shape_stats.
         src = system.layout.source
         self.weights = sp.csr_matrix(
@@ -161,11 +166,16 @@ class Recorder:
         self.coldest = min(self.coldest, float(T.min())) if len(T) else self.coldest
         if top > self.hot_max or self.hottest is None:
             self.hot_max, self.hottest, self.hottest_time = top, T.copy(), t
-        for i, nodes in enumerate(self.shape_nodes):
-            if len(nodes):
-                v = T[nodes].max()
-                if v > self.peak[i]:
-                    self.peak[i], self.peak_time[i] = v, t
+        maxima = self.shape_maxima(T)
+        higher = maxima > self.peak
+        self.peak[higher], self.peak_time[higher] = maxima[higher], t
+
+    def shape_maxima(self, T: np.ndarray) -> np.ndarray:
+        """The largest nodal temperature of each shape (−inf for a shape with no node)."""
+        out = np.full(len(self.has_nodes), -np.inf)
+        if len(self.starts):
+            out[self.has_nodes] = np.maximum.reduceat(T[self.node_of_pair], self.starts)
+        return out
 
     def record(self, T: np.ndarray, t: float, reaction: np.ndarray,
                left: float | None = None) -> None:
@@ -174,7 +184,7 @@ class Recorder:
         s, mesh = self.system, self.system.mesh
         with np.errstate(invalid="ignore", divide="ignore"):
             means = np.where(self.volumes > 0, (self.weights @ T) / self.volumes, np.nan)
-        maxima = [T[nodes].max() if len(nodes) else np.nan for nodes in self.shape_nodes]
+        maxima = np.where(self.has_nodes, self.shape_maxima(T), np.nan)
         stored = (float((self.linear_heat * (T - self.T0)).sum())
                   if self.linear_heat is not None
                   else float(stored_heat(s, T, self.T0, self.rho_c).sum()))
