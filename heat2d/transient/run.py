@@ -303,7 +303,11 @@ def periodic_figures(system, history: History, networks: dict, *, tolerance: flo
         entry = {"pulse_w": s.amplitude, "between_w": s.base, "width_s": s.width,
                  "period_s": s.period, "duty": s.width / s.period}
         if net["linear"]:
-            factor = periodic_peak(net["foster"].z, 1.0, s.width, s.period)
+            try:
+                factor = periodic_peak(net["foster"].z, 1.0, s.width, s.period)
+            except SolveError as exc:
+                raise exc.located(file=system.model.source,
+                                  entry=f'shape "{shape.name}" power_pulse') from None
             base = float(history.shape_max[0, shape.index])
             if system.model.transient.initial != "steady":
                 base = _steady_max(system, shape.name, s.base, method)
