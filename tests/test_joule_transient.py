@@ -20,10 +20,6 @@ from heat2d.transient.joule_stepper import JouleStepper, joule_steady_start
 from heat2d.verify import joule_forms as jf
 
 march_module = importlib.import_module("heat2d.transient.march")
-HOOK = hasattr(march_module, "JouleStepper")
-needs_hook = pytest.mark.skipif(
-    not HOOK, reason="heat2d.transient.march does not use JouleStepper for models with "
-    "currents yet (the march's Joule hook)")
 
 TRACE = """
 [model]
@@ -215,7 +211,6 @@ def test_steady_start_uses_h_at_time_zero():
     assert np.abs(base - ref).max() > 1.0                          # 3.6 K apart
 
 
-@needs_hook
 @pytest.mark.parametrize("alpha", [jf.COPPER_ALPHA, 0.0])
 def test_march_adiabatic_trace_pulse(alpha):
     # joule_forms.adiabatic_pulse_rise: 74.41 K (α = 0.00393/K), 65.28 K (α = 0).
@@ -232,7 +227,6 @@ def test_march_adiabatic_trace_pulse(alpha):
     assert hist.energy["relative_error"] < 1e-6
 
 
-@needs_hook
 def test_march_energy_balance_with_joule_loss():
     # Energy conservation: ∫P dt (I²R included) = stored + out, to 1e-6 of the input.
     system = system_of(BOARD.format(current="current_pulse = { current = 5, width = 0.2, "
@@ -244,7 +238,6 @@ def test_march_energy_balance_with_joule_loss():
     assert np.all(np.isin([0.2, 0.5, 0.7, 1.0, 1.2], np.round(hist.step_ends, 12)))
 
 
-@needs_hook
 def test_march_current_step_reaches_steady_joule_solve():
     # A current step 3 A -> 5 A at t = 1 s from the steady state at 3 A: after 20 s
     # (about 30 time constants of the board) the field equals the steady Joule solve at
