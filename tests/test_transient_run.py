@@ -143,3 +143,40 @@ def test_python_api_returns_the_history():
     assert h.shape_max.shape == (len(h.times), len(model.shapes))
     assert np.all(np.diff(h.shape_max[:, model.shape("heater").index]) >= -1e-9)
     assert result.summary["mode"] == "transient"
+
+
+def test_a_run_that_is_a_power_step_gives_its_own_impedance():
+    # The heater's 1 mW switched on at t = 0 from the unpowered steady state (20 °C
+    # throughout): by superposition the run's rise is 1 mW times the heater's unit step
+    # response, so Z(t) is read from the history (no second march) and still follows
+    # Carslaw & Jaeger's series within 1 % from Fo = 1e-3, and a separate impedance
+    # march within the tolerance of both marches (1e-3 K at 1 mW: 1 K/W).
+    from heat2d.transient.run import impedances, report_times, step_of
+
+    step = "power = 0\npower_pulse = { power = 1e-3, width = 100 }"
+    model = heat2d.parse(strip([(1.0, K, RHO_C)], power=step, end=10.0,
+                               extra="initial = \"steady\"\ntolerance = 0.001"))
+    result = run_transient(model, check=False)
+    system = result.system
+    assert step_of(system, 10.0) == ("heater", pytest.approx(1e-3, rel=1e-12))
+    h = result.history
+    index = model.shape("heater").index
+    # (the steady start is 20 °C to the solve's round-off, 4e-9 K here)
+    np.testing.assert_allclose(h.shape_rise[:, index], h.shape_max[:, index] - 20.0,
+                               atol=1e-8)
+    t, z = result.zth["heater"]
+    np.testing.assert_array_equal(z, h.shape_rise[:, index] / 1e-3)     # read, not marched
+    exact = slab_step(t[1:], L, K, RHO_C, AREA)
+    sel = t[1:] * K / RHO_C / L**2 >= 1e-3
+    assert np.abs(z[1:][sel] / exact[sel] - 1).max() < 0.01
+    times = report_times(system, model.transient)
+    marched, _ = impedances(system, times, model.transient, "direct")
+    assert np.abs(marched["heater"][1] - z).max() < 2.0
+    # Not a step: a pulse ending inside the run, a ramp, or two shapes switched on.
+    for power in ("power_pulse = { power = 1e-3, width = 5 }",
+                  "power_table = [[0, 0], [1, 1e-3]]"):
+        other = heat2d.parse(strip([(1.0, K, RHO_C)], power=power, end=10.0))
+        assert step_of(run_transient(other, zth=False, check=False).system, 10.0) is None
+    two = heat2d.parse(strip([(1.0, K, RHO_C)], power=step, end=10.0).replace(
+        'name = "layer0"', 'name = "layer0"\npower_pulse = { power = 1e-3, width = 100 }'))
+    assert step_of(run_transient(two, zth=False, check=False).system, 10.0) is None

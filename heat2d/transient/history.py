@@ -55,6 +55,8 @@ class History:
     hottest : (n,) °C, the nodal field at the step end where the largest nodal
         temperature of the run occurred; hottest_time : s, that step end
     stats : counts of factorizations, solves, rejected steps, the solver used
+    shape_rise : (r, S) K, the largest rise of each shape above its state at t = 0
+        (max over its nodes of T − T(0); NaN for voids)
     """
 
     times: np.ndarray
@@ -81,6 +83,7 @@ class History:
     hottest: np.ndarray | None = None
     hottest_time: float = 0.0
     coldest: float = np.nan
+    shape_rise: np.ndarray | None = None
 
     def peaks(self) -> dict[str, dict[str, float]]:
         """Per non-void shape: the largest temperature over the run (°C), when (s), and
@@ -109,11 +112,15 @@ class Recorder:
         ns = len(model.shapes)
         # Each shape's nodes, one after another (a node may be in several shapes), for one
         # reduceat per step instead of one max per shape.
-        pairs = np.unique(np.column_stack([np.repeat(mesh.triangle_shape, 3),
-                                           mesh.triangles.ravel()]), axis=0)
-        self.node_of_pair = pairs[:, 1]
-        self.has_nodes = np.bincount(pairs[:, 0], minlength=ns) > 0
-        self.starts = np.searchsorted(pairs[:, 0], np.flatnonzero(self.has_nodes))
+        # (shape, node) pairs as one int64 key each: a 1-D unique (a row-wise unique of a
+        # two-column array sorts structured rows, seconds on a large mesh).
+        nn = np.int64(len(mesh.points))
+        keys = np.unique(np.repeat(mesh.triangle_shape, 3).astype(np.int64) * nn
+                         + mesh.triangles.ravel())
+        shape_of_pair = keys // nn
+        self.node_of_pair = keys % nn
+        self.has_nodes = np.bincount(shape_of_pair, minlength=ns) > 0
+        self.starts = np.searchsorted(shape_of_pair, np.flatnonzero(self.has_nodes))
         # ∫T dV per shape = W T (W: ∫φ_i dV of each shape's triangles), as shape_stats.
         src = system.layout.source
         self.weights = sp.csr_matrix(
@@ -196,6 +203,7 @@ class Recorder:
         heat = heat[:nb] + self.edge_out(T, t)
         self.rows.append({
             "max": maxima,
+            "rise": np.where(self.has_nodes, self.shape_maxima(T - self.T0), np.nan),
             "mean": means,
             "probes": [float(w @ T[mesh.triangles[k]]) for k, w in self.probe_w],
             "heat": heat,
@@ -241,4 +249,5 @@ class Recorder:
             boundary_names=tuple(b.name for b in model.boundaries), stats=stats,
             final=final, hottest=(final if self.hottest is None else self.hottest),
             hottest_time=float(self.hottest_time),
-            coldest=float(min(self.coldest, float(final.min()))))
+            coldest=float(min(self.coldest, float(final.min()))),
+            shape_rise=np.array([r["rise"] for r in rows]).reshape(len(rows), ns))

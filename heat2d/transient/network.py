@@ -274,7 +274,8 @@ def cauer(foster: Foster) -> Cauer:
     return Cauer(r=np.array([float(x) for x in rs]), c=np.array([float(x) for x in cs]))
 
 
-def modal_network(K, C, p, w, count: int = 12) -> Foster:  # noqa: N803 (the math names)
+def modal_network(K, C, p, w, count: int = 12, inverse=None  # noqa: N803 (the math names)
+                  ) -> Foster:
     """Foster terms of a finite-element model by its thermal modes.
 
     K φ = λ C φ with C the lumped (diagonal) capacity (J/K) and K the conductance (W/K),
@@ -282,7 +283,9 @@ def modal_network(K, C, p, w, count: int = 12) -> Foster:  # noqa: N803 (the mat
     for the `count` slowest modes (scipy.sparse.linalg.eigsh, shift-invert about 0; a
     dense scipy.linalg.eigh when the model is small). p is the power per node for 1 W,
     w the observation weights (for example a node's indicator, or the shape's mean).
-    The returned resistances may be negative when w and p differ.
+    The returned resistances may be negative when w and p differ. ``inverse``: a callable
+    b -> K⁻¹ b (an earlier factorization of K, e.g. the steady solve's) for the
+    shift-invert, instead of factorizing K again.
     """
     import scipy.linalg
     import scipy.sparse as sp
@@ -299,7 +302,13 @@ def modal_network(K, C, p, w, count: int = 12) -> Foster:  # noqa: N803 (the mat
         dense = K.toarray() if sp.issparse(K) else np.asarray(K, dtype=float)
         lam, phi = scipy.linalg.eigh(dense, np.diag(cap), subset_by_index=[0, count - 1])
     else:
-        lam, phi = eigsh(sp.csc_matrix(K), k=count, M=sp.diags(cap), sigma=0, which="LM")
+        op = None
+        if inverse is not None:
+            from scipy.sparse.linalg import LinearOperator
+
+            op = LinearOperator((n, n), matvec=lambda b: inverse(np.ravel(b)), dtype=float)
+        lam, phi = eigsh(sp.csc_matrix(K), k=count, M=sp.diags(cap), sigma=0, which="LM",
+                         OPinv=op)
     phi = phi / np.sqrt((cap[:, None] * phi * phi).sum(axis=0))
     if not np.all(lam > 0):
         raise SolveError("the conductance matrix is not positive definite on the free nodes")

@@ -167,7 +167,7 @@ def run_transient(model, *, method: str = "auto", refine: float = 1.0,
     curves, networks, duty, periodic = {}, {}, {}, {}
     if zth_on:
         curves, networks = stage("impedance", impedances, system, times, settings, method,
-                                 cache=cache)
+                                 cache=cache, history=history if initial == "steady" else None)
         for name, net in networks.items():
             widths = _widths(times)
             duty[name] = {"widths": widths, "duties": tuple(settings.duties),
@@ -209,20 +209,28 @@ def powered_shapes(system) -> list[tuple[str, float]]:
 
 
 def impedances(system, times: np.ndarray, settings, method: str,
-               cache: FactorCache | None = None) -> tuple[dict, dict]:
+               cache: FactorCache | None = None, history: History | None = None
+               ) -> tuple[dict, dict]:
     """Z(t) of a power step in each powered shape alone, and its Foster, Cauer and modal
-    networks with the steady resistance as their total."""
+    networks with the steady resistance as their total. ``history``: the run's own march
+    from the steady state; where it is itself such a step (:func:`step_of`), that
+    shape's curve is read from it instead of marching again."""
     model = system.model
     linear = not model.transient_nonlinear
     curves, networks = {}, {}
     if not linear:
         zero_state = steady_start(system, power={}, method=method)
+    step = step_of(system, float(times[-1])) if history is not None and linear else None
     for name, peak in powered_shapes(system):
         if peak <= 0:
             continue
         index = model.shape(name).index
         # K per W: a rise of `tolerance` K at the shape's peak power.
-        if linear:
+        if step is not None and step[0] == name and history.shape_rise is not None:
+            hist = history
+            z = hist.shape_rise[:, index] / step[1]
+            r_total, node = _steady_rise(system, name, method, cache)
+        elif linear:
             hist = march(system, times=times, initial=0.0, power={name: 1.0},
                          boundary="zero", tolerance=settings.tolerance / peak, method=method,
                          cache=cache)
@@ -244,11 +252,29 @@ def impedances(system, times: np.ndarray, settings, method: str,
             ladder = cauer(foster)
         except SolveError:
             ladder = None
-        modal = _modal(system, name, node, method) if linear and node is not None else None
+        modal = (_modal(system, name, node, method, cache) if linear and node is not None
+                 else None)
         curves[name] = (hist.times, z)
         networks[name] = {"foster": foster, "cauer": ladder, "modal": modal,
                           "r_total": r_total, "linear": linear, "power_w": peak}
     return curves, networks
+
+
+def step_of(system, end: float) -> tuple[str, float] | None:
+    """(shape name, ΔP W) when a run of ``system`` from the steady state is a power step
+    in one shape: a linear model whose inputs (powers, boundary values, h) hold from t = 0
+    to ``end``, all as before t = 0 but that shape's power, which rises by ΔP at t = 0.
+    By superposition the run's rise is then ΔP times that shape's unit step response."""
+    drive = forcing(system)
+    if (system.model.transient_nonlinear or drive.has_current or drive.conv
+            or drive.fixed_fn or len(drive.breaks(end)) or not len(drive.powered)):
+        return None
+    jump = drive.power(0.0) - drive.initial_power
+    changed = np.flatnonzero(jump != 0)
+    if len(changed) != 1 or not jump[changed[0]] > 0:
+        return None
+    i = int(changed[0])
+    return system.model.shapes[drive.powered[i]].name, float(jump[i])
 
 
 def _steady_rise(system, name: str, method: str, cache: FactorCache | None = None
@@ -268,8 +294,9 @@ def _steady_rise(system, name: str, method: str, cache: FactorCache | None = Non
     return float(T[node]), node
 
 
-def _modal(system, name: str, node: int, method: str):
-    """The exact network of the discrete model from K φ = λ C φ, observed at ``node``."""
+def _modal(system, name: str, node: int, method: str, cache: FactorCache | None = None):
+    """The exact network of the discrete model from K φ = λ C φ, observed at ``node``
+    (shift-invert with the steady factor ``cache`` keeps, when it is a direct one)."""
     n = system.K.shape[0]
     free = np.ones(n, dtype=bool)
     free[system.fixed] = False
@@ -281,7 +308,9 @@ def _modal(system, name: str, node: int, method: str):
     p = np.asarray(forcing(system, {name: 1.0}, "zero").B.todense()).ravel()[free]
     w = np.zeros(n)
     w[node] = 1.0
-    return modal_network(K, C, p, w[free], count=min(MODES, count - 2))
+    factor = cache.steady_factor(system) if cache is not None else None
+    inverse = factor if getattr(factor, "method", None) == "direct" else None
+    return modal_network(K, C, p, w[free], count=min(MODES, count - 2), inverse=inverse)
 
 
 def periodic_figures(system, history: History, networks: dict, *, tolerance: float = 0.01,
