@@ -6,12 +6,14 @@ The board of run_vs_floor.py (about 100 000 nodes by default) with heat capaciti
 unpowered steady state (found inside the march, so timed with it), reported from 1 µs
 to 100 s at 10 times per decade (81 report times). In one run it times
 one steady solve (``heat2d.fem.solver.solve``, the fastest of three), the history march alone
-(``heat2d.transient.march``, tolerance 0.01 K, report times from the steps' stage states)
+(``heat2d.transient.march``, tolerance 0.01 K, report times from the steps' stage states,
+with its error estimate)
 and the whole ``run_transient`` of the model with that ``[transient]`` section (the
-history march with its check march on halved steps, the impedance march of the die, its
-RC networks and modal check), and prints both ratios with the steps, factorizations,
-back-substitutions and CG iterations. ``--land`` lands a step on every report time
-instead; ``--no-check`` times the march alone without the check.
+history march with its time-step error estimate (transported in the march's own
+factorizations), the die's impedance (read from the history, itself a step of the
+die's power), its RC networks and modal check), and prints both ratios with the
+steps, factorizations, back-substitutions and CG iterations. ``--land`` lands a step on
+every report time instead; ``--no-check`` times the march without its error estimate.
 
     python benchmarks/transient_vs_steady.py [--nodes 100000] [--tolerance 0.01] [--land]
 """
@@ -81,7 +83,7 @@ def main(argv: list[str] | None = None) -> int:
     s = hist.stats
     c = s.get("coarse", s)
     print(f"history march 1e-6..100 s, {len(times)} report times"
-          f"{'' if args.no_check else ', with its check march'}: {t_march:.3f} s, "
+          f"{'' if args.no_check else ', with its error estimate'}: {t_march:.3f} s, "
           f"ratio {t_march / t_steady:.1f}")
     for label, st in (("march", c), ("check march", s if "coarse" in s else None)):
         if st is None:
@@ -107,7 +109,7 @@ def main(argv: list[str] | None = None) -> int:
           f"(march {tim.get('march', 0):.2f} s, impedance {tim.get('impedance', 0):.2f} s, "
           f"meshing and assembly {meshing:.2f} s; "
           f"without meshing: ratio {marching / t_steady:.1f})")
-    print(f"  its history march (the check march): {solver.get('steps')} steps, "
+    print(f"  its history march: {solver.get('steps')} steps, "
           f"{solver.get('factorizations')} factorizations, {solver.get('back_solves')} "
           f"back-substitutions; die peak {result.peak(die):.4f} °C")
     print(f"ratio history march / steady solve: {t_march / t_steady:.1f}")

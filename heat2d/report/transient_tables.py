@@ -31,6 +31,11 @@ def _s(value: Any) -> str:
     return num(value, ".4g")
 
 
+def _by(summary: dict[str, Any]) -> str:
+    """How the run estimated its time-step error (older summaries: halved steps)."""
+    return summary["transient"].get("time_step_error_by") or "march repeated on halved steps"
+
+
 def _limit_hits(summary: dict[str, Any]) -> dict[str, float]:
     """Shape -> its periodic peak, for the shapes whose periodic peak passes their limit."""
     periodic = summary["transient"].get("periodic") or {}
@@ -84,7 +89,7 @@ def peaks_table(summary: dict[str, Any]) -> str:
                   "peak at (s)", f"mean at {_s(hot)} s (°C)", f"min at {_s(hot)} s (°C)"],
                  rows, bad_rows=bad) + para(
         "Peak: the largest temperature of the shape at any step of the run; ± the estimate "
-        "of its time-step error (the march repeated on halved steps). It carries no "
+        f"of its time-step error ({_by(summary)}). It carries no "
         "estimate of the mesh error. Mean and min are at the hottest moment of the run.",
         cls="note")
 
@@ -306,7 +311,7 @@ def numerics(summary: dict[str, Any]) -> str:
                   f"{num(tr.get('largest_step_s'), '.2g')} s)"),
         ("local error allowed per step", f"{num(tr.get('tolerance_k'))} K"),
         ("time-step error of the largest temperature",
-         f"{num(tr.get('time_step_error_k'), '.2g')} K (march repeated on halved steps)"),
+         f"{num(tr.get('time_step_error_k'), '.2g')} K ({_by(summary)})"),
         ("energy balance of the march",
          num((tr.get("energy_balance") or {}).get("relative_error"), ".1e")),
         ("snapshots (VTU series, .pvd)", ", ".join(f"{t:g}" for t in tr.get(

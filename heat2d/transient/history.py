@@ -166,9 +166,9 @@ class Recorder:
         heat = np.bincount(mesh.edge_boundary[self.rest], out[self.rest], minlength=nb)[:nb]
         return heat + self.drive.convection_change(T, t)
 
-    def track(self, T: np.ndarray, t: float) -> None:
+    def track(self, T: np.ndarray, t: float) -> np.ndarray:
         """Step-end peaks of each shape, and the field of the hottest moment (copied only
-        when a new overall max appears)."""
+        when a new overall max appears); returns which shapes' peaks rose."""
         top = float(T.max()) if len(T) else -np.inf
         self.coldest = min(self.coldest, float(T.min())) if len(T) else self.coldest
         if top > self.hot_max or self.hottest is None:
@@ -176,12 +176,24 @@ class Recorder:
         maxima = self.shape_maxima(T)
         higher = maxima > self.peak
         self.peak[higher], self.peak_time[higher] = maxima[higher], t
+        return higher
 
     def shape_maxima(self, T: np.ndarray) -> np.ndarray:
         """The largest nodal temperature of each shape (−inf for a shape with no node)."""
         out = np.full(len(self.has_nodes), -np.inf)
         if len(self.starts):
             out[self.has_nodes] = np.maximum.reduceat(T[self.node_of_pair], self.starts)
+        return out
+
+    def shape_argmax(self, T: np.ndarray) -> np.ndarray:
+        """The node of each shape's largest temperature (−1 for a shape with no node)."""
+        out = np.full(len(self.has_nodes), -1)
+        if len(self.starts):
+            vals = T[self.node_of_pair]
+            top = np.maximum.reduceat(vals, self.starts)
+            counts = np.diff(np.append(self.starts, len(vals)))
+            hit = np.flatnonzero(vals == np.repeat(top, counts))
+            out[self.has_nodes] = self.node_of_pair[hit[np.searchsorted(hit, self.starts)]]
         return out
 
     def record(self, T: np.ndarray, t: float, reaction: np.ndarray,

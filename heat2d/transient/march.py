@@ -14,11 +14,12 @@ third-order quadrature through the same three points, filtered by (C + sK)⁻¹ 
 stiff components do not inflate it (the filtering of Hosea & Shampine's estimate, from
 memory); its max-norm is held below ``tolerance``.
 
-Step sizes sit on a ladder s = 2^k seconds (one factorization per rung, kept while in
+Step sizes sit on a ladder s = 4^k seconds (one factorization per rung, kept while in
 use, and shared with the other marches of a run through a :class:`~.linear.FactorCache`:
-their rungs coincide); a step moves up one rung when its error is below tolerance/16 (the
-error of a doubled step is 8× larger), down as many rungs as the error asks when it is
-rejected (never below :data:`FLOOR`), and is shortened to land exactly on schedule
+their rungs coincide); a step moves up one rung when its error is below tolerance/64 (the
+local error of a step four times as long is 64× larger), down as many rungs as the
+error asks when it is rejected (never below :data:`FLOOR`), and is shortened to land
+exactly on schedule
 breaks, snapshot times and the end (and, with ``land_reports``, on every report time;
 else the report times are read inside the steps). Target times closer than
 :data:`MERGE` (relative) are one target. After t = 0 and after each break two
@@ -44,7 +45,7 @@ from ..fem.solver import solve as steady_solve
 from .forcing import forcing
 from .history import History, Recorder
 from .joule_stepper import JouleStepper, joule_steady_start
-from .linear import FactorCache
+from .linear import RATIO, FactorCache
 from .steppers import LinearStepper, NewtonStepper
 
 GAMMA = 2 - math.sqrt(2)
@@ -59,11 +60,14 @@ B_EMBED = (1 - W2 - W3, W2, W3)
 """The third-order quadrature through the same three points (exact for cubics)."""
 STARTUP = 2
 """Backward-Euler steps after t = 0 and after each schedule break."""
-GROW = 1 / 16
+GROW = 1 / RATIO**3
 STRETCH = 0.01
 """A step that would end this little (relative) short of a target is stretched onto it
 (else a sliver of a step would follow)."""
 MAX_REJECTS = 60
+TRANSPORTED = "local errors transported by the scheme"
+HALVED = "march repeated on halved steps"
+"""How the time-step error estimate was made (``History.stats["error_estimate"]``)."""
 
 
 MERGE = 1e-9
@@ -170,8 +174,12 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         (step end times, backward-Euler flags): take exactly these steps, without error
         control (a replay, a fixed-step study).
     check
-        Estimate the time-step error: march again on the steps of this march each split
-        in two; the finer march is returned, with ``error`` and ``peak_error`` =
+        Estimate the time-step error of the figures (``error``, ``peak_error``). A linear
+        model transports each step's local error estimate with the scheme itself, e_n+1
+        = R(h) e_n + l_n (the global error equation of a linear scheme; Lang & Verwer,
+        SIAM J. Sci. Comput. 29 (2007), from memory), in the same factorizations: the
+        error of a figure is e at its node. A nonlinear model marches again on the steps
+        of this march each split in two; the finer march is returned, with the error
         |coarse − fine|/3 (second order: the error of the finer march).
     first_step
         s: the first step; default a quarter of the first report time or of the shortest
@@ -183,9 +191,8 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         step's three stage states (third-order, as accurate as the step), so the steps
         follow the error control alone.
     rung
-        s: the lowest rung s₀ of the step ladder (matrices C + s₀2^k K); default from the
-        first step (the check march: half the first march's, so its halved steps sit on
-        rungs).
+        s: the lowest rung s₀ of the step ladder (matrices C + s₀4^k K); default from the
+        first step (the check march: half the first march's).
     cache
         Factorizations shared with other marches of the same system and capacity (a
         :class:`~.linear.FactorCache`); a march with ``check`` shares its own with the
@@ -215,8 +222,8 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     # whose ``power`` mapping powers only the named shapes).
     joule = drive.has_current
     nonlinear = joule or system.nonlinear or varies(system, rho_c) or drive.varies_matrix
-    # Rungs at powers of two (s = 2^k s): every march of the system meets the same ones.
-    s0 = rung or 2.0 ** math.floor(math.log2(D * h_first))
+    # Rungs at powers of four (s = 4^k s): every march of the system meets the same ones.
+    s0 = rung or float(RATIO) ** math.floor(math.log(D * h_first, RATIO) + 1e-9)
     if check and cache is None:
         cache = FactorCache()
     newton = JouleStepper if joule else NewtonStepper
@@ -236,7 +243,12 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     is_break = np.isin(targets, breaks)
 
     t, T = 0.0, T0
-    k = 0                               # rung: s = s0 2^k
+    k = 0                               # rung: s = s0 4^k
+    # The error transport (linear models with ``check``): e at the nodes, 0 at fixed ones.
+    transport = check and plan is None and isinstance(stepper, LinearStepper)
+    g = np.zeros(len(T0))
+    row_error = [0.0]
+    peak_error = np.where(np.isfinite(rec.peak), 0.0, np.nan)
     startup = STARTUP
     j = 0                               # next target
     p = 0                               # plan position
@@ -251,7 +263,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             s = h if euler else D * h
         else:
             euler = startup > 0
-            s = s0 * 2.0**k
+            s = s0 * RATIO**k
             h = s if euler else s / D
         landing = t + h * (1 + STRETCH) >= target
         if plan is not None:
@@ -262,7 +274,8 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             h = target - t
             s = h if euler else D * h
         try:
-            step = _step(stepper, rec, T, t, h, s, euler, estimate=plan is None)
+            step = _step(stepper, rec, T, t, h, s, euler, estimate=plan is None,
+                         g=g if transport else None)
         except SolveError:
             if plan is not None:
                 raise
@@ -277,16 +290,20 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                                  file=system.model.source)
             order = 2 if euler else 3
             drop = 1 if not np.isfinite(err) else max(
-                1, math.ceil(math.log(err / (0.5 * tolerance)) / math.log(2**order)))
-            k = math.floor(math.log2(s / s0) + 1e-9) - drop
+                1, math.ceil(math.log(err / (0.5 * tolerance)) / math.log(RATIO**order)))
+            k = math.floor(math.log(s / s0, RATIO) + 1e-9) - drop
             floor = FLOOR * max(t, float(targets[0]))
-            if s0 * 2.0**k < (floor if euler else D * floor):
+            if s0 * RATIO**k < (floor if euler else D * floor):
                 raise SolveError(f"the time step fell below {floor:.3g} s at t = {t:.6g} s "
                                  f"(error {err:.3g} K)", file=system.model.source)
             continue
         rejects = 0
         T_prev = T
-        T, _, e_in, e_out, Tg = step
+        T, _, e_in, e_out, Tg, est, g_new = step
+        g_prev = g
+        if transport:
+            g = g_new
+            g[stepper.free] += est
         rec.energy_in += e_in
         rec.energy_out += e_out
         rec.steps.append(h)
@@ -298,12 +315,19 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             tau = between.pop(0)
             Tt = _between(stepper, T_prev, Tg, T, t_prev, h, tau, euler)
             rec.record(Tt, tau, _reaction(stepper, Tt, tau, tau - t_prev), left=tau - t_prev)
+            if transport:
+                x = (tau - t_prev) / h
+                row_error.append(_error_at(Tt, (1 - x) * g_prev + x * g))
         rec.ends.append(t)
-        rec.track(T, t)
+        higher = rec.track(T, t)
+        if transport and higher.any():
+            peak_error[higher] = np.abs(g[rec.shape_argmax(T)[higher]])
         p += 1
         if landing:
             if j in report:
                 rec.record(T, t, _reaction(stepper, T, t, h), left=h)
+                if transport:
+                    row_error.append(_error_at(T, g))
             if j in snap:
                 rec.snapshot(T, t)
             if is_break[j] and plan is None:
@@ -320,6 +344,9 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             progress(t, end)
     counts = {**stepper.counts(), "steps": len(rec.steps), "rejected": rejected_total,
               "largest_local_error_k": max(local, default=0.0)}
+    if transport:
+        counts["error_estimate"] = TRANSPORTED
+        return rec.history(T, counts, error=np.asarray(row_error), peak_error=peak_error)
     hist = rec.history(T, counts)
     if not check:
         return hist
@@ -334,8 +361,13 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     error = np.abs(np.nanmax(hist.shape_max, axis=1) - np.nanmax(fine.shape_max, axis=1)) / 3
     peak_error = np.abs(hist.peak_max - fine.peak_max) / 3
     return replace(fine, error=error, peak_error=peak_error,
-                   stats={**fine.stats, "coarse": counts,
+                   stats={**fine.stats, "coarse": counts, "error_estimate": HALVED,
                           "largest_local_error_k": counts["largest_local_error_k"]})
+
+
+def _error_at(T: np.ndarray, e: np.ndarray) -> float:
+    """The error of the largest temperature: |e| at its node."""
+    return float(abs(e[int(np.argmax(T))])) if len(T) else 0.0
 
 
 def _reaction(stepper, T: np.ndarray, t: float, left: float) -> np.ndarray:
@@ -369,26 +401,49 @@ def _between(stepper, T0, Tg, T1, t0: float, h: float, tau: float, euler: bool
 
 
 def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
-          euler: bool, estimate: bool = True):
+          euler: bool, estimate: bool = True, g: np.ndarray | None = None):
     """One step from (T, t): (T_new, error estimate K (0 without ``estimate``: a replayed
-    step), energy in J, energy out J, the state at t + γh or None)."""
+    step), energy in J, energy out J, the state at t + γh or None, the filtered local
+    error at the free nodes or None, R(h) g or None).
+
+    With ``g`` (linear models), the step also carries the error g of the state at t to
+    t + h: R(h) g, the same stages with no sources and the fixed nodes at zero, solved
+    as second columns of the stages' back-substitutions (loosely: an estimate)."""
     free, fixed = stepper.free, stepper.fixed
     t1 = t + h                          # powers there: the left limit (left=h)
     Hn = stepper.H(T)
     Rn = stepper.residual(T, t)
     drive = rec.drive
+    carry = g is not None
+    if carry:
+        L = stepper.ladder
+        ef = g[free]
+        Ce = L.C * ef
+    moved = None
     if euler:
-        T1 = stepper.stage(s, Hn[free], t1, T, h)
+        if carry:
+            T1, moved = stepper.stage(s, Hn[free], t1, T, h, extra=Ce)
+        else:
+            T1 = stepper.stage(s, Hn[free], t1, T, h)
         H1 = stepper.H(T1)
         R1 = stepper.residual(T1, t1, h)
         est = stepper.filter(s, 0.5 * h * (Rn[free] - R1[free])) if estimate else None
         points = ((t1, T1, R1, 1.0),)
     else:
         tg = t + GAMMA * h
-        Tg = stepper.stage(s, Hn[free] - s * Rn[free], tg, T)
+        guess = None
+        if carry:
+            Tg, eg = stepper.stage(s, Hn[free] - s * Rn[free], tg, T,
+                                   extra=Ce - s * (L.K @ ef))
+            guess = T + (Tg - T) / GAMMA
+            T1, moved = stepper.stage(s, A * stepper.H(Tg)[free] - C_ * Hn[free], t1, guess,
+                                      h, extra=A * L.C * eg - C_ * Ce)
+        else:
+            Tg = stepper.stage(s, Hn[free] - s * Rn[free], tg, T)
         Hg = stepper.H(Tg)
-        guess = T + (Tg - T) / GAMMA
-        T1 = stepper.stage(s, A * Hg[free] - C_ * Hn[free], t1, guess, h)
+        if not carry:
+            guess = T + (Tg - T) / GAMMA
+            T1 = stepper.stage(s, A * Hg[free] - C_ * Hn[free], t1, guess, h)
         H1 = stepper.H(T1)
         Rg = stepper.residual(Tg, tg)
         R1 = stepper.residual(T1, t1, h)
@@ -399,7 +454,7 @@ def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
                   (t1, T1, R1, B_SCHEME[2]))
     err = float(np.abs(est).max()) if est is not None and len(est) else 0.0
     if not np.all(np.isfinite(T1)):
-        return T1, np.inf, 0.0, 0.0, None
+        return T1, np.inf, 0.0, 0.0, None, None, None
     lefts = (None, None, h)[-len(points):]
     e_in = h * sum(w * drive.total_power(tp, lf, Tp)      # I²R depends on the state
                    for (tp, Tp, _, w), lf in zip(points, lefts, strict=True))
@@ -411,4 +466,8 @@ def _step(stepper, rec: Recorder, T: np.ndarray, t: float, h: float, s: float,
     # heat comes in through one boundary and leaves through another (nothing generated).
     rec.energy_gross += h * sum(w * np.abs(q).sum() + w * np.abs(Rp[fixed]).sum()
                                 for q, (_, _, Rp, w) in zip(edges, points, strict=True))
-    return T1, err, e_in, e_edge + e_fixed, (None if euler else Tg)
+    if carry:
+        full = np.zeros_like(g)
+        full[free] = moved
+        moved = full
+    return T1, err, e_in, e_edge + e_fixed, (None if euler else Tg), est, moved

@@ -134,7 +134,8 @@ def run_transient(model, *, method: str = "auto", refine: float = 1.0,
     zth
         Compute the impedance curves and networks; default the model's ``zth`` setting.
     check
-        Estimate the time-step error of every peak by a second march on halved steps.
+        Estimate the time-step error of every peak (linear models: the local errors
+        carried by the scheme; nonlinear ones: a second march on halved steps).
 
     Returns
     -------

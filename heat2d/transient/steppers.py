@@ -62,13 +62,18 @@ class LinearStepper(_Base):
         return self.K @ T - self.drive.F(t, left=left)
 
     def stage(self, s: float, r: np.ndarray, t: float, guess: np.ndarray,
-              left: float | None = None) -> np.ndarray:
+              left: float | None = None, extra: np.ndarray | None = None):
+        """The stage state; with ``extra`` (free nodes), also (C + s K)⁻¹ extra, loosely,
+        in the same back-substitution: (T, x)."""
         T = self.with_fixed(guess, t)
         F = self.drive.F(t, left=left)
         rhs = r + self.C0[self.free] * self.T0[self.free] \
             - s * (self.Kfd @ T[self.fixed] - F[self.free])
-        T[self.free] = self.ladder.solve(s, rhs, guess[self.free])
-        return T
+        if extra is None:
+            T[self.free] = self.ladder.solve(s, rhs, guess[self.free])
+            return T
+        T[self.free], x = self.ladder.solve_pair(s, rhs, guess[self.free], extra)
+        return T, x
 
     def filter(self, s: float, v: np.ndarray) -> np.ndarray:
         return self.ladder.approx(s, v)

@@ -157,11 +157,12 @@ def _transient(result) -> dict[str, Any]:
         "smallest_step_s": float(np.min(h.steps)), "largest_step_s": float(np.max(h.steps)),
         "initial": st.initial if isinstance(st.initial, str) else float(st.initial),
         "tolerance_k": st.tolerance,
-        # The history march's own counts; the check march on halved steps reuses its
-        # factorizations (its counts under "check_march").
+        # The history march's own counts (a linear model's error transport is among
+        # them); a nonlinear model's check march on halved steps under "check_march".
         "solver": _counts(stats.get("coarse", stats)),
         "time_step_error_k": (_finite(float(np.nanmax(h.error)))
                               if np.isfinite(h.error).any() else None),
+        "time_step_error_by": stats.get("error_estimate"),
         "peaks": h.peaks(),
         **({"check_march": _counts(stats)} if "coarse" in stats else {}),
         "energy_balance": dict(h.energy),
