@@ -25,6 +25,10 @@ TARGET = 0.002
 points, relative to the curve at each time. At 0.2 % the slab of Carslaw & Jaeger ch. 3
 (Fourier numbers 1e-4 to 10) gets six terms and its slowest term within 0.4 %; at 1 %,
 five terms lump faster modes into the slowest, 1.2 % off."""
+EIG_TOL = 1e-8
+"""Relative accuracy of the modal network's Ritz pairs (eigsh ``tol``): its eigenvalues
+agree with those at machine precision to 2e-15 on the 100 000-node board, with 40
+shift-invert solves instead of 56."""
 PER_DECADE = 4
 """Candidate time constants per decade for the non-negative least-squares fit."""
 WEIGHT = 1e4
@@ -308,7 +312,7 @@ def modal_network(K, C, p, w, count: int = 12, inverse=None  # noqa: N803 (the m
 
             op = LinearOperator((n, n), matvec=lambda b: inverse(np.ravel(b)), dtype=float)
         lam, phi = eigsh(sp.csc_matrix(K), k=count, M=sp.diags(cap), sigma=0, which="LM",
-                         OPinv=op)
+                         OPinv=op, tol=EIG_TOL)
     phi = phi / np.sqrt((cap[:, None] * phi * phi).sum(axis=0))
     if not np.all(lam > 0):
         raise SolveError("the conductance matrix is not positive definite on the free nodes")
