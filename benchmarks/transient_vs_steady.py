@@ -89,7 +89,8 @@ def main(argv: list[str] | None = None) -> int:
         if st is None:
             continue
         print(f"  {label}: {st['steps']} steps ({st['rejected']} rejected), "
-              f"{st['factorizations']} factorizations ({st['solver']}), "
+              f"{st['factorizations']} factorizations ({st['solver']}; "
+              f"+{st.get('landing_factorizations', 0)} of landing steps), "
               f"{st.get('jacobi_rungs', 0)} Jacobi-CG rungs, {st.get('back_solves', 0)} "
               f"back-substitutions, {st.get('cg_iterations', 0)} CG iterations")
     print(f"  smallest step {hist.steps.min():.3g} s, largest {hist.steps.max():.3g} s; "

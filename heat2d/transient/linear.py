@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import copy
 import math
+import time
 from collections import OrderedDict
 
 import numpy as np
@@ -38,6 +39,13 @@ steps); the first rung whose solve needs more iterations than this, and every ru
 above it, is factorized instead."""
 FILTER_TOL = 1e-3
 """Relative residual of the solve that filters an error estimate (a 0.1 % estimate)."""
+ONE_OFF = 40
+"""A step between rungs (one landing on a break or the end) gets a factorization of its
+own when that costs less than this many back-substitutions (the measured times of the
+march's factorizations and back-substitutions): the conjugate gradients it replaces
+take about twenty per stage at 1e-10, and two loose ones for the error transport (so
+at 100 000 nodes, where a factorization costs 30 back-substitutions; at a million
+nodes a factorization costs more and CG is kept)."""
 KEEP = 4
 """Factorizations a march keeps on its own (the rungs most recently used)."""
 BUDGET = 1.5e9
@@ -68,6 +76,8 @@ class FactorCache:
         self.jacobi_from: dict[tuple, float] = {}
         self.hits = 0
         self._steady: tuple[object, object] | None = None
+        self.seconds = {"factor": math.nan, "back": math.nan}
+        """The last factorization's time and a running mean of single back-substitutions."""
 
     def steady_factor(self, system):
         """The factor of the steady matrix K_ff of ``system`` kept by :meth:`keep_steady`
@@ -120,7 +130,9 @@ class Ladder:
         self.share(cache or FactorCache(keep=KEEP))
         self.jacobi: dict[int, tuple] = {}
         self._last: tuple[float, sp.csr_matrix] | None = None
+        self._off: tuple[float, object] | None = None
         self.factorizations = 0
+        self.one_off = 0
         self.back_solves = 0
         self.cg_iterations = 0
         self.jacobi_rungs = 0
@@ -161,8 +173,17 @@ class Ladder:
         f = self.cache.get(key)
         if f is not None:
             return f
+        f = self._build(s)
+        self.cache.put(key, f, _size(f, self.matrix(s)))
+        return f
+
+    def _build(self, s: float, one_off: bool = False):
         A = self.matrix(s)
-        self.factorizations += 1
+        if one_off:
+            self.one_off += 1
+        else:
+            self.factorizations += 1
+        start = time.perf_counter()
         base = self.cache.bases.get(self.print)
         if base is None or self.method != "direct":
             f = Factor(self.method, A, keep_order=True)
@@ -170,8 +191,19 @@ class Ladder:
         else:
             f = copy.copy(base)               # the base's fill-reducing ordering reused
             f.update(A)
-        self.cache.put(key, f, _size(f, A))
+        self.cache.seconds["factor"] = time.perf_counter() - start
         return f
+
+    def _back(self, f, b: np.ndarray) -> np.ndarray:
+        """f(b), timed (one column) for :data:`ONE_OFF`."""
+        self.back_solves += 1
+        if b.ndim > 1:
+            return f(b)
+        start = time.perf_counter()
+        x = f(b)
+        took, seen = time.perf_counter() - start, self.cache.seconds["back"]
+        self.cache.seconds["back"] = took if math.isnan(seen) else 0.9 * seen + 0.1 * took
+        return x
 
     def _near(self, s: float) -> tuple[object, bool]:
         """The factor for s: its own rung's, or a neighbour's (cached first, else the
@@ -179,14 +211,21 @@ class Ladder:
         k = self.rung(s)
         if abs(s / (self.s0 * RATIO**k) - 1) < 1e-12:
             return self._factor(k), True
+        if self._off is not None and self._off[0] == s:
+            return self._off[1], True
         use = k + 1 if (self._has(k + 1) or not self._has(k)) else k
-        return self._factor(use), False
+        f = self._factor(use)
+        sec = self.cache.seconds
+        if not isinstance(f, tuple) and sec["factor"] < ONE_OFF * sec["back"]:
+            self._off = None                    # the last one-off freed first
+            self._off = (s, self._build(s, one_off=True))
+            return self._off[1], True
+        return f, False
 
     def solve(self, s: float, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         f, on_rung = self._near(s)
         if on_rung and not isinstance(f, tuple):
-            self.back_solves += 1
-            return f(b)
+            return self._back(f, b)
         A = self.matrix(s)
         if isinstance(f, tuple):
             diag = 1.0 / (self.C + s * self.K.diagonal())
@@ -212,8 +251,7 @@ class Ladder:
             x = self._cg(self.matrix(s), v, lambda r: diag * r, None, 4 * JACOBI_ITERATIONS,
                          tol=FILTER_TOL)
             return diag * v if x is None else x
-        self.back_solves += 1
-        return f(v)
+        return self._back(f, v)
 
     def solve_pair(self, s: float, b: np.ndarray, x0: np.ndarray | None, extra: np.ndarray
                    ) -> tuple[np.ndarray, np.ndarray]:
@@ -224,8 +262,7 @@ class Ladder:
         # (MKL PARDISO solves two columns slower than one after the other: 53 against
         # 2 × 15 ms at 100 000 unknowns)
         if on_rung and not isinstance(f, tuple) and getattr(f, "pardiso", None) is None:
-            self.back_solves += 1
-            x = f(np.column_stack([b, extra]))
+            x = self._back(f, np.column_stack([b, extra]))
             return x[:, 0].copy(), x[:, 1].copy()
         return self.solve(s, b, x0), self.loose(s, extra)
 

@@ -82,7 +82,7 @@ class LinearStepper(_Base):
         L = self.ladder
         return {"factorizations": L.factorizations, "back_solves": L.back_solves,
                 "cg_iterations": L.cg_iterations, "solver": L.method,
-                "jacobi_rungs": L.jacobi_rungs}
+                "jacobi_rungs": L.jacobi_rungs, "landing_factorizations": L.one_off}
 
 
 class NewtonStepper(_Base):
