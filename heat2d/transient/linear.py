@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import copy
 import math
-import time
 from collections import OrderedDict
 
 import numpy as np
@@ -39,13 +38,14 @@ steps); the first rung whose solve needs more iterations than this, and every ru
 above it, is factorized instead."""
 FILTER_TOL = 1e-3
 """Relative residual of the solve that filters an error estimate (a 0.1 % estimate)."""
-ONE_OFF = 40
-"""A step between rungs (one landing on a break or the end) gets a factorization of its
-own when that costs less than this many back-substitutions (the measured times of the
-march's factorizations and back-substitutions): the conjugate gradients it replaces
-take about twenty per stage at 1e-10, and two loose ones for the error transport (so
-at 100 000 nodes, where a factorization costs 30 back-substitutions; at a million
-nodes a factorization costs more and CG is kept)."""
+ONE_OFF = 250_000
+"""Unknowns up to which a step between rungs (one landing on a break or the end) gets a
+factorization of its own instead of conjugate gradients preconditioned with a rung's:
+those take about twenty back-substitutions per stage at 1e-10 and two loose ones for the
+error transport, about 45 in all, where a SuperLU factorization costs 27-35 of them at
+98 000 unknowns (measured on the board of benchmarks/transient_vs_steady.py) and more as
+the mesh grows (the factorization's work grows faster than the factor's size). A size,
+not a timing, so that a run gives the same figures every time."""
 KEEP = 4
 """Factorizations a march keeps on its own (the rungs most recently used)."""
 BUDGET = 1.5e9
@@ -76,8 +76,6 @@ class FactorCache:
         self.jacobi_from: dict[tuple, float] = {}
         self.hits = 0
         self._steady: tuple[object, object] | None = None
-        self.seconds = {"factor": math.nan, "back": math.nan}
-        """The last factorization's time and a running mean of single back-substitutions."""
 
     def steady_factor(self, system):
         """The factor of the steady matrix K_ff of ``system`` kept by :meth:`keep_steady`
@@ -183,7 +181,6 @@ class Ladder:
             self.one_off += 1
         else:
             self.factorizations += 1
-        start = time.perf_counter()
         base = self.cache.bases.get(self.print)
         if base is None or self.method != "direct":
             f = Factor(self.method, A, keep_order=True)
@@ -191,19 +188,11 @@ class Ladder:
         else:
             f = copy.copy(base)               # the base's fill-reducing ordering reused
             f.update(A)
-        self.cache.seconds["factor"] = time.perf_counter() - start
         return f
 
     def _back(self, f, b: np.ndarray) -> np.ndarray:
-        """f(b), timed (one column) for :data:`ONE_OFF`."""
         self.back_solves += 1
-        if b.ndim > 1:
-            return f(b)
-        start = time.perf_counter()
-        x = f(b)
-        took, seen = time.perf_counter() - start, self.cache.seconds["back"]
-        self.cache.seconds["back"] = took if math.isnan(seen) else 0.9 * seen + 0.1 * took
-        return x
+        return f(b)
 
     def _near(self, s: float) -> tuple[object, bool]:
         """The factor for s: its own rung's, or a neighbour's (cached first, else the
@@ -215,8 +204,7 @@ class Ladder:
             return self._off[1], True
         use = k + 1 if (self._has(k + 1) or not self._has(k)) else k
         f = self._factor(use)
-        sec = self.cache.seconds
-        if not isinstance(f, tuple) and sec["factor"] < ONE_OFF * sec["back"]:
+        if not isinstance(f, tuple) and len(self.C) <= ONE_OFF and self.method == "direct":
             self._off = None                    # the last one-off freed first
             self._off = (s, self._build(s, one_off=True))
             return self._off[1], True
