@@ -263,7 +263,7 @@ def _newton(system: System, found, T: np.ndarray, free: np.ndarray, chosen: str,
         A = J[free][:, free].tocsr()
         try:
             if factor is None:
-                factor = Factor(chosen, A)
+                factor = Factor(chosen, A, points=system.mesh.points[free])
             else:
                 factor.update(A)
             tangent = TangentSolver(factor, a[free], b[free])
@@ -382,7 +382,8 @@ def onset_estimate(system: System, T: np.ndarray, found: tuple[Conductor, ...],
     the currents 1/√x_c; and the linear rise per unit fraction² (max over nodes)."""
     _, J = system.residual_and_jacobian(T)
     st = joule_state(system, T, found, 1.0)
-    factor = Factor(chosen, J[free][:, free].tocsr(), keep_order=False)
+    factor = Factor(chosen, J[free][:, free].tocsr(), keep_order=False,
+                    points=system.mesh.points[free])
     frac = np.full(len(found), np.inf)
     rise = np.zeros(len(found))
     for c in range(len(found)):

@@ -1,12 +1,11 @@
 """Stage 5: :class:`~heat2d.assembly.System` -> :class:`Solution`, the nodal temperatures.
 
-Fixed temperatures are eliminated (the reduced matrix stays symmetric positive
-definite); the reduced system is solved by a sparse direct factorization or by
-conjugate gradients preconditioned with smoothed-aggregation multigrid. A model
-whose conductivity depends on temperature, or that radiates, starts from that
-linear solution and is iterated with Newton's method; every iteration reuses the
-sparsity pattern and the fill-reducing ordering (or the multigrid hierarchy) of
-the first solve.
+Fixed temperatures are eliminated (the reduced matrix stays symmetric positive definite);
+the reduced system is solved by a sparse direct factorization (in nested-dissection order,
+:mod:`.ordering`) or by conjugate gradients preconditioned with smoothed-aggregation
+multigrid. A model whose conductivity depends on temperature, or that radiates, starts
+from that linear solution and is iterated with Newton's method, reusing the fill-reducing
+order (or the multigrid hierarchy) of the first solve.
 """
 
 from __future__ import annotations
@@ -21,6 +20,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..errors import ModelError, SolveError
+from .conditioning import conditioning
+from .ordering import fill_order
 
 if TYPE_CHECKING:
     import scipy.sparse as sp
@@ -48,10 +49,6 @@ ACCEPT_RESIDUAL = 1e-8
 NONLINEAR_TOL = 1e-6
 """Newton stops when no nodal temperature changes by more than this (K)."""
 MAX_NONLINEAR_ITERATIONS = 40
-ILL_CONDITIONED_ROUNDOFF = 1e-6
-"""Warn when the condition estimate times machine epsilon exceeds this: reported figures
-then carry round-off above the 1e-6 to which the energy balance is otherwise checked."""
-EPS = float(np.finfo(float).eps)
 
 
 def pardiso_available() -> bool:
@@ -149,15 +146,17 @@ class Factor:
     the fill-reducing ordering (direct) or the multigrid hierarchy (iterative).
 
     The direct method uses MKL PARDISO where ``pypardiso`` is installed (``backend``
-    ``"pardiso"``), else SuperLU (``"superlu"``). :meth:`release` frees the factorization
-    at once (a later call refactors). ``symmetric=True`` says A is symmetric (the reduced
-    conduction matrix), sparing the check; later matrices (:meth:`update`) are checked."""
+    ``"pardiso"``), else SuperLU (``"superlu"``; ordered by nested dissection of the
+    unknowns' ``points`` when given). :meth:`release` frees the factorization at once (a
+    later call refactors). ``symmetric=True`` says A is symmetric (the reduced conduction
+    matrix), sparing the check; later matrices (:meth:`update`) are checked."""
 
     def __init__(self, method: str, A: sp.csr_matrix, *, keep_order: bool = True,
-                 symmetric: bool | None = None) -> None:
+                 symmetric: bool | None = None, points: np.ndarray | None = None) -> None:
         self.method = method
         self._symmetric_hint = symmetric
         self.keep_order = keep_order
+        self.points = points
         self.order: np.ndarray | None = None
         self.ml = None
         self.lu = None
@@ -181,15 +180,17 @@ class Factor:
                 first = True
         if self.method == "direct":
             self.backend = "superlu"
-            if first and not self.keep_order:
+            if self.order is None and self.points is not None:
+                self.order = fill_order(self.points, A)      # None below its size
+            if self.order is None and not self.keep_order:
                 # A single matrix: SuperLU's default column ordering is as fast or faster.
                 self.lu = spla.splu(A.tocsc())
                 self.permuted = False
-            elif first or self.order is None:
+            elif self.order is None:
                 # Matrices to come (Newton): a symmetric ordering that later ones reuse.
                 lu = spla.splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A",
                                options={"SymmetricMode": True})
-                self.order = np.argsort(lu.perm_c)
+                self.order = np.argsort(lu.perm_c)      # kept for later matrices
                 self.lu = lu
                 self.permuted = False
             else:
@@ -354,12 +355,14 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
     del Kf                          # a whole matrix's worth: not held while factorizing
 
     chosen = method if method != "auto" else choose_method(int(free.sum()))
+    points = system.mesh.points[free]
     notes: list[str] = []
     if initial is not None and system.nonlinear:
         T[free] = initial[free]
         _, J = system.residual_and_jacobian(T)
         # One step (a check solve from a good guess) needs no ordering kept for later.
-        factor = Factor(chosen, J[free][:, free].tocsr(), keep_order=newton_steps != 1)
+        factor = Factor(chosen, J[free][:, free].tocsr(), keep_order=newton_steps != 1,
+                        points=points)
         T, residual, history, iterations = _newton(
             system, T, free, factor, tol, newton_steps or max_iterations,
             fixed_steps=newton_steps is not None, factored=True)
@@ -370,11 +373,11 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         x = factor(rhs)
         residual = _relative(Kff, x, rhs)
     else:
-        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
+        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear, points)
     if residual > ACCEPT_RESIDUAL and chosen != "direct":
         notes.append(f"{chosen} reached residual {residual:.1e} only; solved directly instead")
         chosen = "direct"
-        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear)
+        factor, x, residual = _attempt(chosen, Kff, rhs, system.nonlinear, points)
     kappa, note = conditioning(system, Kfd, free, Kff.diagonal())
     if note:
         notes.append(note)
@@ -396,59 +399,11 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
                     tuple(notes), tuple(history), factor, free)
 
 
-def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray,
-                 diag: np.ndarray | None = None) -> tuple[float, str | None]:
-    """A cheap lower estimate of the condition number of the reduced matrix, and a
-    warning when round-off at that condition reaches :data:`ILL_CONDITIONED_ROUNDOFF`.
-
-    For the constant vector v = 1/√n over the n free nodes, vᵀ K_ff v = G/n, where G is
-    the conductance from the free nodes to the outside (convection ∫h dS and coupling
-    to fixed nodes), so λ_min ≤ G/n; λ_max ≥ max diag K_ff. κ ≥ n max diag K_ff / G.
-    G is summed from the boundary terms themselves, not from row sums of K (those cancel
-    to round-off when conductivities are large).
-
-    Parameters
-    ----------
-    system
-        The assembled system.
-    Kf
-        Rows of K at the free nodes: all columns, or (with ``diag``) the columns of the
-        fixed nodes only.
-    free
-        Mask of the free nodes.
-    diag
-        The diagonal of K_ff, if known (then ``Kf`` needs only the fixed columns).
-
-    Returns
-    -------
-    kappa, note
-        The estimate, and the warning text or None.
-    """
-    n = int(free.sum())
-    h = np.nan_to_num(system.edge["h"])
-    coupling = Kf if diag is not None else Kf[:, ~free]
-    ground = float(np.abs(coupling).sum() + (h * system.layout.edge_load.sum(axis=1)).sum())
-    if diag is None:
-        diag = Kf[:, free].diagonal()
-    top = float(diag.max()) if len(diag) else 0.0
-    if ground <= 0 or top <= 0 or not np.isfinite(ground * top):
-        return np.inf, None
-    kappa = n * top / ground
-    if kappa * EPS <= ILL_CONDITIONED_ROUNDOFF:
-        return kappa, None
-    k = np.maximum(system.kx, system.ky)
-    material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
-    return kappa, (f"ill-conditioned system: conductances span at least {kappa:.0e} "
-                   f"(conductivity up to {k.max():g} W/(m·K) in material \"{material.name}\" "
-                   f"against {ground:.2g} W/K to the boundaries); figures may carry round-off "
-                   f"of {kappa * EPS:.0e} relative")
-
-
-def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray, keep_order: bool
-             ) -> tuple[Factor, np.ndarray, float]:
+def _attempt(name: str, A: sp.csr_matrix, b: np.ndarray, keep_order: bool,
+             points: np.ndarray | None = None) -> tuple[Factor, np.ndarray, float]:
     try:
         # The reduced conduction matrix is symmetric by construction.
-        factor = Factor(name, A, keep_order=keep_order, symmetric=True)
+        factor = Factor(name, A, keep_order=keep_order, symmetric=True, points=points)
         x = factor(b)
     except (RuntimeError, ValueError, np.linalg.LinAlgError) as exc:
         if name == "direct":

@@ -120,8 +120,9 @@ class Ladder:
     """Solves (C + s K) x = b for the s of a rung or between rungs."""
 
     def __init__(self, K: sp.csr_matrix, C: np.ndarray, s0: float, method: str,
-                 cache: FactorCache | None = None) -> None:
+                 cache: FactorCache | None = None, points: np.ndarray | None = None) -> None:
         self.K = K.tocsr()
+        self.points = points            # of the unknowns, for the factorizations' order
         self.C = C
         self.s0 = s0
         self.method = method
@@ -183,7 +184,7 @@ class Ladder:
             self.factorizations += 1
         base = self.cache.bases.get(self.print)
         if base is None or self.method != "direct":
-            f = Factor(self.method, A, keep_order=True)
+            f = Factor(self.method, A, keep_order=True, points=self.points)
             self.cache.bases[self.print] = f
         else:
             f = copy.copy(base)               # the base's fill-reducing ordering reused

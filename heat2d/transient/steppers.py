@@ -53,7 +53,8 @@ class LinearStepper(_Base):
         self.K = K
         Kf = K[self.free]
         self.Kfd = Kf[:, self.fixed].tocsr()
-        self.ladder = Ladder(Kf[:, self.free].tocsr(), self.C0[self.free], s0, method)
+        self.ladder = Ladder(Kf[:, self.free].tocsr(), self.C0[self.free], s0, method,
+                             points=system.mesh.points[self.free])
 
     def H(self, T: np.ndarray) -> np.ndarray:
         return self.C0 * (T - self.T0)
@@ -125,7 +126,8 @@ class NewtonStepper(_Base):
         free = self.free
         A = (sp.diags(self.capacity(T)[free]) + s * J[free][:, free]).tocsr()
         if self.factor is None or self.factor.method != "direct":
-            self.factor = Factor(self.method, A, keep_order=True)
+            self.factor = Factor(self.method, A, keep_order=True,
+                                 points=self.system.mesh.points[free])
         else:
             self.factor.update(A)
         self.factor_s = s
