@@ -122,11 +122,11 @@ def resistances(solution) -> tuple[dict[str, Any] | None, dict[str, Any]]:
         q = np.where(mesh.triangle_shape == src.index, system.qdot / power[src.index], 0.0)
         f = np.bincount(tri.ravel(), (q[:, None] * system.layout.source).ravel(), minlength=n)
         theta = np.zeros(n)
-        if reference is not None and getattr(solution.factor, "method", "") == "multigrid":
-            # One source and one boundary temperature: by superposition the run's own
-            # field gives θ = (T − T_ref)/P, the iterative solve's start (it then checks).
-            guess = (T[free] - reference) / power[src.index]
-            theta[free] = solution.factor(f[free], x0=guess)
+        if reference is not None and not model.has_current:
+            # One source, one boundary temperature, a linear model: the unpowered field is
+            # T_ref everywhere, so by superposition θ = (T − T_ref)/P exactly, with the
+            # run's own residual (relative); no further solve.
+            theta[free] = (T[free] - reference) / power[src.index]
         else:
             theta[free] = solution.factor(f[free])
         t_tri = theta[tri]
