@@ -29,19 +29,20 @@ if TYPE_CHECKING:
     from .assembly import System
 
 AUTO_DIRECT_LIMIT = 600_000
-"""Without MKL PARDISO, ``auto`` factorizes with SuperLU below this many unknowns and uses
-multigrid CG (hierarchy reused for every right-hand side) above. Measured on a 2-core
-machine (benchmarks/solver_threshold.py, solve plus one extra right-hand side for the
-°C/W matrix): on the 100 mm orthotropic plate SuperLU 11.4 s against multigrid 11.7 s
-at 312 000 unknowns, 20.9 s against 20.4 s at 624 000 (crossover), 58 s against 40 s at
-978 000; on the copper-laminate board direct stays faster or tied up to 647 000
-(multigrid CG needs 35-105 iterations there) and multigrid is twice as fast at 1.3
-million. With PARDISO (:func:`pardiso_available`) ``auto`` is direct at every size:
-12.7 s against 40 s at 978 000 unknowns, 6.4 s against 11.7 s at 312 000."""
-PARDISO_ABOVE = 40_000
+"""Without MKL PARDISO, ``auto`` factorizes with SuperLU (nested-dissection order) below
+this many unknowns and uses multigrid CG (hierarchy reused for every right-hand side)
+above. Measured on a 2-core machine (benchmarks/solver_threshold.py --model plate, solve
+and one extra right-hand side for the °C/W matrix): SuperLU 2.16 + 0.07 s against
+multigrid 3.40 + 2.82 s at 293 000 unknowns, 5.31 + 0.15 against 8.20 + 6.59 at 585 000,
+12.6 + 0.2 against 11.9 + 9.2 at 978 000; there the factors alone hold 1.34 GB (1.4 kB
+per node, the run's whole budget) where multigrid keeps the run at 1.3 kB per node.
+With PARDISO (:func:`pardiso_available`) ``auto`` is direct at every size."""
+PARDISO_ABOVE = 200_000
 """The direct solver uses PARDISO for systems of at least this many unknowns and SuperLU
-below, where the two tie (loaded 2-core machine, min of 3: 0.06 s against 0.05 s at 9 800
-unknowns, 0.54 s against 0.57 s at 39 000); PARDISO is twice as fast from 78 000 on."""
+(nested-dissection order) below: at 97 700 unknowns they tie (0.48-0.55 s against
+0.54-0.56 s, an extra right-hand side 0.06 against 0.03 s), at 293 000 PARDISO takes
+1.52 s against 2.30 s, at 978 000 5.8 s against 12.8 s (benchmarks/solver_threshold.py
+--model plate, 2-core machine)."""
 ITERATIVE_TOL = 1e-10
 """Relative residual that multigrid CG must reach before its answer is taken."""
 ACCEPT_RESIDUAL = 1e-8
