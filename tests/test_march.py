@@ -428,3 +428,16 @@ def test_unit_step_rise_tends_to_the_steady_self_resistance():
                   power={"slab": 1.0}, boundary="zero", cache=small)
     assert first.stats["factorizations"] > 3
     assert again.stats["factorizations"] < first.stats["factorizations"]
+
+
+def test_error_transport_with_the_multigrid_solver():
+    # The error transport rides as a second column of the stages' solves; multigrid CG
+    # solves one column at a time. Both solvers give the same march and estimate (to
+    # the CG tolerance), for a step of face flux (Carslaw & Jaeger §3.3's slab).
+    system = system_of(slab(size=0.25))
+    times = [10, 1000, 1e5]
+    direct = march(system, times=times, initial=0.0, check=True, method="direct")
+    mg = march(system, times=times, initial=0.0, check=True, method="multigrid")
+    assert np.abs(mg.shape_max - direct.shape_max).max() < 1e-6 * np.abs(direct.shape_max).max()
+    assert np.all(np.isfinite(mg.peak_error)) and mg.peak_error.max() > 0
+    assert mg.peak_error == pytest.approx(direct.peak_error, rel=1e-3)

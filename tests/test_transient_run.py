@@ -177,6 +177,19 @@ def test_a_run_that_is_a_power_step_gives_its_own_impedance():
                   "power_table = [[0, 0], [1, 1e-3]]"):
         other = heat2d.parse(strip([(1.0, K, RHO_C)], power=power, end=10.0))
         assert step_of(run_transient(other, zth=False, check=False).system, 10.0) is None
-    two = heat2d.parse(strip([(1.0, K, RHO_C)], power=step, end=10.0).replace(
-        'name = "layer0"', 'name = "layer0"\npower_pulse = { power = 1e-3, width = 100 }'))
-    assert step_of(run_transient(two, zth=False, check=False).system, 10.0) is None
+    for other in ("power_pulse = { power = 1e-3, width = 100 }",      # a second step
+                  "power_table = [[0, 0], [100, 1e-3]]"):            # a ramp, no knot inside
+        two = heat2d.parse(strip([(1.0, K, RHO_C)], power=step, end=10.0).replace(
+            'name = "layer0"', f'name = "layer0"\n{other}'))
+        assert step_of(run_transient(two, zth=False, check=False).system, 10.0) is None
+    # A small step on a large base power is a step too, but its impedance is marched
+    # (the run's own error control is looser per watt of the step than the march's).
+    based = heat2d.parse(strip([(1.0, K, RHO_C)], end=10.0,
+                               power="power = 0.9e-3\npower_pulse = { power = 1e-3, "
+                                     "width = 100 }",
+                               extra="initial = \"steady\""))
+    run = run_transient(based, check=False)
+    assert step_of(run.system, 10.0) == ("heater", pytest.approx(1e-4, rel=1e-9))
+    zb = run.zth["heater"][1]
+    assert not np.allclose(zb, run.history.shape_rise[:, index] / 1e-4)
+    assert np.abs(zb[1:][sel] / exact[sel] - 1).max() < 0.01

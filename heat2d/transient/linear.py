@@ -204,12 +204,11 @@ class Ladder:
         if self._off is not None and self._off[0] == s:
             return self._off[1], True
         use = k + 1 if (self._has(k + 1) or not self._has(k)) else k
-        f = self._factor(use)
-        if not isinstance(f, tuple) and len(self.C) <= ONE_OFF and self.method == "direct":
+        if use >= self.jacobi_below and len(self.C) <= ONE_OFF and self.method == "direct":
             self._off = None                    # the last one-off freed first
             self._off = (s, self._build(s, one_off=True))
             return self._off[1], True
-        return f, False
+        return self._factor(use), False
 
     def solve(self, s: float, b: np.ndarray, x0: np.ndarray | None = None) -> np.ndarray:
         f, on_rung = self._near(s)
@@ -250,7 +249,8 @@ class Ladder:
         f, on_rung = self._near(s)
         # (MKL PARDISO solves two columns slower than one after the other: 53 against
         # 2 × 15 ms at 100 000 unknowns)
-        if on_rung and not isinstance(f, tuple) and getattr(f, "pardiso", None) is None:
+        if (on_rung and not isinstance(f, tuple) and f.method == "direct"
+                and getattr(f, "pardiso", None) is None):       # (multigrid: one column)
             x = self._back(f, np.column_stack([b, extra]))
             return x[:, 0].copy(), x[:, 1].copy()
         return self.solve(s, b, x0), self.loose(s, extra)
