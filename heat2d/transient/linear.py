@@ -57,8 +57,8 @@ PROTECT = 2
 class FactorCache:
     """Factorizations of C + s K kept across the marches of one run.
 
-    The marches of a run (its history, the check march on halved steps, the impedance
-    march of each powered shape) solve with the same K and C; with rungs anchored at
+    The marches of a linear run (its history and the impedance march of each powered
+    shape) solve with the same K and C; with rungs anchored at
     powers of four (s = 4^k s) their matrices C + s K coincide, so a rung factorized by one
     march serves the others. Entries are keyed by a fingerprint of (K, C, method) and the
     rung's s; at most ``budget`` bytes (estimated from the factors' non-zeros) or ``keep``

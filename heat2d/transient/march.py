@@ -195,8 +195,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         first step (the check march: half the first march's).
     cache
         Factorizations shared with other marches of the same system and capacity (a
-        :class:`~.linear.FactorCache`); a march with ``check`` shares its own with the
-        check march.
+        :class:`~.linear.FactorCache`).
     progress
         Called as progress(t, end) after each accepted step.
     """
@@ -224,8 +223,6 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     nonlinear = joule or system.nonlinear or varies(system, rho_c) or drive.varies_matrix
     # Rungs at powers of four (s = 4^k s): every march of the system meets the same ones.
     s0 = rung or float(RATIO) ** math.floor(math.log(D * h_first, RATIO) + 1e-9)
-    if check and cache is None:
-        cache = FactorCache()
     newton = JouleStepper if joule else NewtonStepper
     stepper = (newton(system, drive, T0, rho_c, chosen) if nonlinear
                else LinearStepper(system, drive, T0, rho_c, s0, chosen))
