@@ -38,6 +38,12 @@ steps); the first rung whose solve needs more iterations than this, and every ru
 above it, is factorized instead."""
 FILTER_TOL = 1e-3
 """Relative residual of the solve that filters an error estimate (a 0.1 % estimate)."""
+DIRECT_LIMIT = 2_500_000
+"""Unknowns up to which ``auto`` factorizes a march's stage matrices (SuperLU in
+nested-dissection order) where one steady solve would use multigrid
+(:data:`heat2d.fem.solver.AUTO_DIRECT_LIMIT`): a march solves each rung's matrix some
+twenty times, and a back-substitution costs a small part of a multigrid solve (0.27 s
+against about 7 s at 978 000 unknowns, benchmarks/README.md)."""
 ONE_OFF = 250_000
 """Unknowns up to which a step between rungs (one landing on a break or the end) gets a
 factorization of its own instead of conjugate gradients preconditioned with a rung's:
@@ -185,7 +191,11 @@ class Ladder:
         base = self.cache.bases.get(self.print)
         if base is None or self.method != "direct":
             f = Factor(self.method, A, keep_order=True, points=self.points)
-            self.cache.bases[self.print] = f
+            # The order kept for later rungs, not the factors (a rung dropped from the
+            # cache frees its memory).
+            base = copy.copy(f)
+            base.lu = base.pardiso = None
+            self.cache.bases[self.print] = base
         else:
             f = copy.copy(base)               # the base's fill-reducing ordering reused
             f.update(A)

@@ -45,7 +45,7 @@ from ..fem.solver import solve as steady_solve
 from .forcing import forcing
 from .history import History, Recorder
 from .joule_stepper import JouleStepper, joule_steady_start
-from .linear import RATIO, FactorCache
+from .linear import DIRECT_LIMIT, RATIO, FactorCache
 from .steppers import LinearStepper, NewtonStepper
 
 GAMMA = 2 - math.sqrt(2)
@@ -211,7 +211,13 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     at = _nearest(targets, times)
     on = np.abs(targets[at] - times) <= MERGE * times
     times = np.where(on, targets[at], times)        # report times landed on: exactly
-    chosen = method if method != "auto" else choose_method(len(system.K.indptr) - 1)
+    n = len(system.K.indptr) - 1
+    chosen = method if method != "auto" else choose_method(n)
+    if method == "auto" and n < DIRECT_LIMIT:
+        # Many solves per matrix: factorize (not multigrid), the steady start too (its
+        # factor serves the steady rise of each impedance, where multigrid CG from zero
+        # can take hundreds of iterations for a unit load: 45 s at a million nodes).
+        chosen = "direct"
     T0 = _initial(system, drive, initial, chosen, cache)
     gaps = np.diff(np.concatenate([[0.0], breaks])) if len(breaks) else np.array([end])
     h_first = first_step or min(times[0], targets[0], float(gaps.min())) / 4

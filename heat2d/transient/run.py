@@ -29,7 +29,7 @@ from ..fem.solver import solve
 from ..pipeline.chain import stage_runner
 from .forcing import forcing
 from .history import History
-from .linear import FactorCache
+from .linear import DIRECT_LIMIT, FactorCache
 from .march import march, merge_times, steady_start
 from .network import cauer, foster_fit, modal_network
 from .periodic import duty_family, periodic_peak
@@ -298,6 +298,8 @@ def _steady_rise(system, name: str, method: str, cache: FactorCache | None = Non
     drive = forcing(system, {name: 1.0}, "zero")
     unit = replace(system, F=drive.F(0.0), fixed_value=np.zeros(len(system.fixed)))
     factor = cache.steady_factor(system) if cache is not None else None
+    if method == "auto" and len(system.K.indptr) - 1 < DIRECT_LIMIT:
+        method = "direct"       # as the marches: a unit load can take multigrid CG long
     solution = solve(unit, method=method, factor=factor)
     if cache is not None:
         cache.keep_steady(system, solution.factor)
