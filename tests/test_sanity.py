@@ -185,6 +185,24 @@ def test_a_huge_conductivity_reports_an_honest_balance():
     assert any("energy balance closes only to" in w for w in s["warnings"])
 
 
+def test_a_balance_opened_by_an_ill_conditioned_solve_says_why():
+    # The bundled control board with its die attach at k = 1e9 (found by the long
+    # property run): the reactions' round-off bound stays small, but the solve itself
+    # (condition above 2e10, residual 5.6e-9) leaves the balance open by 4e-5. The
+    # balance must carry the solve's ill-conditioning note, or the run be refused.
+    text = (Path(__file__).parent.parent / "models" / "control_board.toml").read_text()
+    text = text.replace("[materials.die_attach]\nk = 2\n", "[materials.die_attach]\nk = 1e9\n")
+    try:
+        s = heat2d.solve(heat2d.parse(text), estimate=False).summary
+    except ModelError as exc:
+        assert "ill-conditioned system" in str(exc)
+        return
+    eb = s["energy_balance"]
+    assert abs(eb["relative_error"]) > 1e-6                  # measured 4.0e-5
+    assert eb["note"].startswith("ill-conditioned system")
+    assert s["warnings"].count(eb["note"]) == 1
+
+
 def test_a_huge_conductivity_whose_balance_is_lost_is_refused_as_input():
     # k = 1e15 (the issue's case: 18.8 W reported leaving for 1 W): the heat flows are
     # round-off, so the run refuses instead of reporting them.

@@ -262,8 +262,14 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                              line=probe.line)
         probes[probe.name] = float(bary @ T[tri[k]])
 
+    # A balance open past round-off in a system the solve found ill-conditioned: that is
+    # why (the solve's own note, carried into the balance so it is never left unexplained).
+    badly = [n for n in solution.notes if n.startswith("ill-conditioned system")]
+    if "note" not in balance and badly and abs(balance["relative_error"]) > REACTION_ROUNDOFF:
+        balance["note"] = badly[0]
     warnings = [*mesh.geometry.warnings, *mesh.warnings, *system.warnings, *solution.notes]
-    warnings += [balance["note"]] if "note" in balance else []
+    warnings += [balance["note"]] if "note" in balance and balance["note"] not in warnings \
+        else []
     if "note" in balance and abs(balance["relative_error"]) > UNTRUSTED_BALANCE:
         k = np.maximum(system.kx, system.ky)
         name = model.materials[mesh.triangle_material[np.argmax(k)]].name
