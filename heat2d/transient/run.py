@@ -226,9 +226,9 @@ def impedances(system, times: np.ndarray, settings, method: str,
     if step is not None and step[1] < STEP_SHARE * peaks.get(step[0], 0.0):
         step = None         # a small step on a large base: its own march is more accurate
     for name, peak in powered_shapes(system):
-        if peak <= 0:
-            continue
         index = model.shape(name).index
+        if peak <= 0 or not np.any(system.mesh.triangle_shape == index):
+            continue            # (a shape covered by later ones has no node to rise)
         # K per W: a rise of `tolerance` K at the shape's peak power.
         if step is not None and step[0] == name and history.shape_rise is not None:
             hist = history
