@@ -308,6 +308,19 @@ def test_nonlinear_step_response_reaches_the_nonlinear_steady_state():
     assert steady.max() > 50          # far from linear: k drops by half across the slab
 
 
+def _pulsed_slab_marches(material: str):
+    """A 0.3 s pulse of 1 W into a slab (convection left, held right), marched to 2 s
+    with its error estimate at tolerance 0.05 K, and again at 1e-5 K (the reference)."""
+    model = slab(length=4, height=0.5, size=0.25, left="h = 100\nambient = 0",
+                 right="temperature = 0", material=material,
+                 shape_extra="power_pulse = { power = 1, width = 0.3 }",
+                 extra="[transient]\nend = 2\n")
+    system = system_of(model)
+    times = np.geomspace(1e-3, 2, 30)
+    rough = march(system, times=times, initial="steady", tolerance=0.05, check=True)
+    return rough, march(system, times=times, initial="steady", tolerance=1e-5)
+
+
 def test_peak_error_estimate_brackets_the_time_step_error():
     # A pulse's peak at tolerance 0.05 K against the same march at 1e-5 K (its own error
     # about 1e-5 K): the transported local errors (e_n+1 = R e_n + l_n, the global error
@@ -315,14 +328,7 @@ def test_peak_error_estimate_brackets_the_time_step_error():
     # from memory) are within a factor 2 of the march's true error (measured 6.10e-3 K
     # against 6.34e-3 K; over the report rows 5.37e-2 against 5.28e-2 K; at 0.01 K and
     # 0.2 K within 4 % too).
-    model = slab(length=4, height=0.5, size=0.25, left="h = 100\nambient = 0",
-                 right="temperature = 0",
-                 shape_extra="power_pulse = { power = 1, width = 0.3 }",
-                 extra="[transient]\nend = 2\n")
-    system = system_of(model)
-    times = np.geomspace(1e-3, 2, 30)
-    rough = march(system, times=times, initial="steady", tolerance=0.05, check=True)
-    exact = march(system, times=times, initial="steady", tolerance=1e-5)
+    rough, exact = _pulsed_slab_marches("")
     true = abs(rough.peaks()["slab"]["max"] - exact.peaks()["slab"]["max"])
     estimate = rough.peaks()["slab"]["max_error"]
     assert estimate / 2 <= true <= 2 * estimate
@@ -450,14 +456,7 @@ def test_nonlinear_peak_error_estimate_by_halved_steps():
     # march at 1e-5 K (measured 9.6e-3 K estimated against 8.5e-3 K).
     from heat2d.transient.march import HALVED
 
-    model = slab(length=4, height=0.5, size=0.25, left="h = 100\nambient = 0",
-                 right="temperature = 0", material="k = [[0, 20], [100, 10]]",
-                 shape_extra="power_pulse = { power = 1, width = 0.3 }",
-                 extra="[transient]\nend = 2\n")
-    system = system_of(model)
-    times = np.geomspace(1e-3, 2, 30)
-    rough = march(system, times=times, initial="steady", tolerance=0.05, check=True)
-    exact = march(system, times=times, initial="steady", tolerance=1e-5)
+    rough, exact = _pulsed_slab_marches("k = [[0, 20], [100, 10]]")
     assert rough.stats["error_estimate"] == HALVED
     true = abs(rough.peaks()["slab"]["max"] - exact.peaks()["slab"]["max"])
     estimate = rough.peaks()["slab"]["max_error"]
