@@ -410,7 +410,8 @@ def reshape(draw: st.DrawFn, doc: Doc) -> Doc:
     elif how == "far":
         geo["x"] = draw(st.sampled_from([1e5, -1e5, 9e5]))
     else:
-        geo["y"] = (geo["y"] if isinstance(geo["y"], int | float) else 0) + 0.05
+        y = geo.get("y", 0)                 # a circle may leave y out (0)
+        geo["y"] = (y if isinstance(y, int | float) else 0) + 0.05
     return doc
 
 

@@ -461,3 +461,26 @@ def test_nonlinear_peak_error_estimate_by_halved_steps():
     true = abs(rough.peaks()["slab"]["max"] - exact.peaks()["slab"]["max"])
     estimate = rough.peaks()["slab"]["max_error"]
     assert estimate / 2 <= true <= 2 * estimate
+
+
+def test_a_huge_power_is_marched_to_a_relative_tolerance():
+    # 1e9 W by a slip of units (found by the long property run: 0.01 K allowed on a rise
+    # of 1e10 K took steps of 2e-7 s, past any time limit). Past a span of 1000 K the
+    # tolerance is raised to 1e-4 of the span; the march is linear, so its figures are those of 1 W times 1e9
+    # (superposition), within the time-step error of a march held to 1e-4 of its span.
+    system = system_of(slab(length=10, height=0.5, size=0.5, left="h = 50\nambient = 0"))
+    times = np.geomspace(0.01, 100, 13)
+    one = march(system, times=times, initial=0.0, power={"slab": 1.0}, boundary="zero",
+                tolerance=0.01, plausible=1e-3)     # the same rule at 1 W
+    count = iter(range(1000))               # without the relative floor: millions of steps
+
+    def bounded(t, end):
+        next(count)                         # StopIteration past 1000 steps
+
+    huge = march(system, times=times, initial=0.0, power={"slab": 1e9}, boundary="zero",
+                 tolerance=0.01, check=True, progress=bounded)
+    span = float(np.abs(huge.final).max())
+    assert huge.stats["tolerance_used_k"] == pytest.approx(1e-4 * span, rel=1e-4)
+    assert len(huge.steps) <= 3 * len(one.steps)
+    scaled = huge.shape_max[:, 0] / 1e9
+    assert np.abs(scaled - one.shape_max[:, 0]).max() <= 1e-4 * span / 1e9     # measured 2e-6 K

@@ -216,6 +216,30 @@ FOUND["transient uniform unpowered ring"] = (
 # heat through the boundaries).
 
 
+
+
+def _bundled(name: str, old: str, new: str) -> str:
+    text = (ROOT / "models" / f"{name}.toml").read_text(encoding="utf-8")
+    assert old in text
+    return text.replace(old, new, 1)
+
+
+# Mutations of the bundled models found by the long run (HYPOTHESIS_PROFILE=slow).
+# The bus plane's laminate at kx = 1e9: the Joule solve left the balance open by 3.6e-4
+# with no word why (its conditioning note now explains it); at 1e15 Newton stalled at a
+# 0.01 K change and exited 1 (now exit 2 naming the material).
+FOUND["joule, laminate kx 1e9"] = _bundled("bus_plane", "kx = 1.06", "kx = 1e9")
+FOUND["joule, laminate kx 1e15"] = _bundled("bus_plane", "kx = 1.06", "kx = 1e15")
+# A 1e-5 mm pour wholly under the top copper layer: its covered outline, a hair from the
+# layer's edge, made a 7-million-node mesh and ran past the time limit (covered outlines
+# now stay out of the graph).
+FOUND["covered sliver pour"] = _bundled(
+    "power_stage", 'width = "pour_l", height = "t_outer" }', 'width = "pour_l", height = 1e-5 }')
+# 1e9 W held on the die: 0.01 K per step on a rise of 1e10 K took steps of 2e-7 s, past
+# the time limit (the tolerance now rises to 1e-4 of the temperature span).
+FOUND["transient, 1e9 W hold"] = _bundled("pulsed_switch", "p_hold = 0.3 ", "p_hold = 1e9 ")
+
+
 @pytest.mark.parametrize("text", FOUND.values(), ids=FOUND.keys())
 def test_models_found_by_the_properties_keep_the_contract(text):
     assert_contract(text, "run")

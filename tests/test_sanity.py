@@ -203,6 +203,31 @@ def test_a_balance_opened_by_an_ill_conditioned_solve_says_why():
     assert s["warnings"].count(eb["note"]) == 1
 
 
+BUS_PLANE = (Path(__file__).parent.parent / "models" / "bus_plane.toml").read_text()
+
+
+def test_a_joule_solve_says_when_it_is_ill_conditioned():
+    # The bundled bus plane with the laminate's in-plane k at 1e9 (found by the long
+    # property run): the Joule solve left the balance open by 3.6e-4 with no word why.
+    # The solve's ill-conditioning note must explain it, as for a linear solve.
+    text = BUS_PLANE.replace("kx = 1.06", "kx = 1e9")
+    assert text != BUS_PLANE
+    s = heat2d.solve(heat2d.parse(text), estimate=False).summary
+    eb = s["energy_balance"]
+    assert abs(eb["relative_error"]) > 1e-6                  # measured 3.6e-4
+    assert eb["note"].startswith("ill-conditioned system")
+    assert 'material "fr4"' in eb["note"]
+
+
+def test_a_joule_solve_lost_to_round_off_is_refused_as_input():
+    # kx = 1e15: Newton stalls at a 0.01 K change (round-off), which is bad input naming
+    # the material (exit 2), not a solver failure (exit 1).
+    text = BUS_PLANE.replace("kx = 1.06", "kx = 1e15")
+    with pytest.raises(ModelError, match=r'material "fr4": ill-conditioned system: .*'
+                                         r'Joule heating failed'):
+        heat2d.solve(heat2d.parse(text), estimate=False)
+
+
 def test_a_huge_conductivity_whose_balance_is_lost_is_refused_as_input():
     # k = 1e15 (the issue's case: 18.8 W reported leaving for 1 W): the heat flows are
     # round-off, so the run refuses instead of reporting them.

@@ -7,6 +7,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..errors import ModelError
+
 if TYPE_CHECKING:
     import scipy.sparse as sp
 
@@ -64,3 +66,12 @@ def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray,
                    f"(conductivity up to {k.max():g} W/(m·K) in material \"{material.name}\" "
                    f"against {ground:.2g} W/K to the boundaries); figures may carry round-off "
                    f"of {kappa * EPS:.0e} relative")
+
+
+def refusal(system: System, note: str, reason: str) -> ModelError:
+    """The bad-input error for a solve that failed in a system ``note`` (from
+    :func:`conditioning`) calls ill-conditioned: it names the most conducting material."""
+    k = np.maximum(system.kx, system.ky)
+    material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
+    return ModelError(f"{note.replace('figures may carry', 'the solve fails with')} ({reason})",
+                      file=system.model.source, entry=f"material \"{material.name}\"")

@@ -35,6 +35,7 @@ import numpy as np
 from ..errors import ModelError, SolveError, ThermalRunawayError
 from ..model.schema import RESISTIVITY_FLOOR
 from .assembly import System
+from .conditioning import EPS, conditioning, refusal
 from .solver import AUTO_DIRECT_LIMIT, METHODS, Factor, Solution, solve
 
 ONSET_RTOL = 1e-3
@@ -49,6 +50,9 @@ MAX_BISECTIONS = 30
 RELATIVE_TOL = 1e-8
 """Newton also stops when the change is below this fraction of the largest |T| (°C): the
 round-off floor of states close to a runaway, where temperatures reach 10⁵ °C."""
+ROUNDOFF_CAP = 1e-5
+"""In an ill-conditioned system Newton stops at a change of κε of the largest |T| (its
+round-off; :func:`~.conditioning.conditioning`), at most this fraction of it."""
 RUNAWAY_TEMPERATURE = 1e7
 """°C: a Newton iterate hotter than this is taken as diverging."""
 
@@ -251,7 +255,8 @@ class _Attempt:
 
 
 def _newton(system: System, found, T: np.ndarray, free: np.ndarray, chosen: str,
-            scale: float, tol: float, max_iterations: int) -> _Attempt:
+            scale: float, tol: float, max_iterations: int,
+            relative: float = RELATIVE_TOL) -> _Attempt:
     """Newton with step halving on the Joule heat balance at ``scale`` times the currents."""
     T = T.copy()
     R, J, a, b, st = residual_and_jacobian(system, T, found, scale)
@@ -289,7 +294,7 @@ def _newton(system: System, found, T: np.ndarray, free: np.ndarray, chosen: str,
         if not np.all(np.isfinite(T)) or np.abs(T).max() > RUNAWAY_TEMPERATURE:
             return _Attempt(False, T, history, reason="temperature diverging")
         # Far above any real temperature (near a runaway) round-off limits the change.
-        if change < max(tol, RELATIVE_TOL * float(np.abs(T).max())):
+        if change < max(tol, relative * float(np.abs(T).max())):
             factor.update(J[free][:, free].tocsr())
             tangent = TangentSolver(factor, a[free], b[free])
             if st.floored:
@@ -354,14 +359,25 @@ def solve_joule(system: System, *, method: str = "auto", initial: np.ndarray | N
         "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
     t_start = _start(system) if initial is None else np.array(initial, dtype=float)
     t_start[system.fixed] = system.fixed_value
-    attempt = _newton(system, found, t_start, free, chosen, 1.0, tol, max_iterations)
+    # As the linear solve: say when round-off can show (the balance carries the note).
+    kappa, note = conditioning(system, system.K.tocsr()[free][:, ~free], free,
+                               system.K.diagonal()[free])
+    # Newton's change cannot fall below the round-off of the solve (κε of the temperatures).
+    relative = max(RELATIVE_TOL, min(kappa * EPS, ROUNDOFF_CAP)) if note else RELATIVE_TOL
+    attempt = _newton(system, found, t_start, free, chosen, 1.0, tol, max_iterations,
+                      relative)
     if not attempt.ok:
-        _runaway(system, found, free, chosen, tol, max_iterations, attempt)
+        try:
+            _runaway(system, found, free, chosen, tol, max_iterations, attempt, relative)
+        except SolveError as exc:
+            if note is None or isinstance(exc, ThermalRunawayError):
+                raise
+            raise refusal(system, note, exc.reason) from exc
     st = joule_state(system, attempt.T, found)
     # The loss is reported per conductor (conductor_figures), not as a note.
     return Solution(with_joule(system, attempt.T, st), attempt.T, chosen, attempt.iterations,
-                    attempt.residual, time.perf_counter() - start, (), tuple(attempt.history),
-                    attempt.tangent, free)
+                    attempt.residual, time.perf_counter() - start,
+                    (note,) if note else (), tuple(attempt.history), attempt.tangent, free)
 
 
 def with_joule(system: System, T: np.ndarray, state: JouleState | None = None) -> System:
@@ -395,9 +411,11 @@ def onset_estimate(system: System, T: np.ndarray, found: tuple[Conductor, ...],
     return frac, rise
 
 
-def _runaway(system: System, found, free, chosen, tol, max_iterations, failed: _Attempt):
+def _runaway(system: System, found, free, chosen, tol, max_iterations, failed: _Attempt,
+             relative: float = RELATIVE_TOL):
     """Bisect the fraction of the currents at which steady states stop existing; raise."""
-    base = _newton(system, found, _start(system), free, chosen, 0.0, tol, max_iterations)
+    base = _newton(system, found, _start(system), free, chosen, 0.0, tol, max_iterations,
+                   relative)
     if not base.ok:
         raise SolveError(f"nonlinear solve with Joule heating failed: {base.reason}",
                          file=system.model.source)
@@ -405,7 +423,7 @@ def _runaway(system: System, found, free, chosen, tol, max_iterations, failed: _
     lo, hi, t_lo = 0.0, 1.0, base.T
     guesses = [s for s in (0.98 * frac.min(), 1.02 * frac.min()) if s < 1]
     for s in guesses:
-        got = _newton(system, found, t_lo, free, chosen, s, tol, max_iterations)
+        got = _newton(system, found, t_lo, free, chosen, s, tol, max_iterations, relative)
         if got.ok:
             lo, t_lo = s, got.T
         else:
@@ -415,7 +433,7 @@ def _runaway(system: System, found, free, chosen, tol, max_iterations, failed: _
         if hi - lo <= ONSET_RTOL * hi:
             break
         s = 0.5 * (lo + hi)
-        got = _newton(system, found, t_lo, free, chosen, s, tol, max_iterations)
+        got = _newton(system, found, t_lo, free, chosen, s, tol, max_iterations, relative)
         if got.ok:
             lo, t_lo = s, got.T
         else:

@@ -19,8 +19,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import ModelError, SolveError
-from .conditioning import conditioning
+from ..errors import SolveError
+from .conditioning import conditioning, refusal
 from .ordering import fill_order
 
 if TYPE_CHECKING:
@@ -384,11 +384,7 @@ def solve(system: System, *, method: str = "auto", tol: float = NONLINEAR_TOL,
         notes.append(note)
     if not np.isfinite(residual) or residual > ACCEPT_RESIDUAL:
         if note:
-            k = np.maximum(system.kx, system.ky)
-            material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
-            raise ModelError(f"{note.replace('figures may carry', 'the solve fails with')}"
-                             f" (relative residual {residual:.1e})", file=system.model.source,
-                             entry=f"material \"{material.name}\"")
+            raise refusal(system, note, f"relative residual {residual:.1e}")
         raise SolveError(f"linear solve failed: relative residual {residual:.2e} with {chosen}",
                          file=system.model.source)
     T[free] = x

@@ -65,6 +65,13 @@ STRETCH = 0.01
 """A step that would end this little (relative) short of a target is stretched onto it
 (else a sliver of a step would follow)."""
 MAX_REJECTS = 60
+RELATIVE_TOLERANCE = 1e-4
+PLAUSIBLE_SPAN = 1000.0
+"""K. Where the temperature span (the state's range, or its largest change from the
+start) passes this, past the melting point of every board material, the tolerance is
+raised to :data:`RELATIVE_TOLERANCE` of the span: 0.01 K allowed on a rise of a billion
+kelvin (a power with a slip of many decades) would take millions of steps for figures
+that are no result. Below it the tolerance is the one asked for."""
 TRANSPORTED = "local errors transported by the scheme"
 HALVED = "march repeated on halved steps"
 """How the time-step error estimate was made (``History.stats["error_estimate"]``)."""
@@ -144,6 +151,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
           plan: tuple[np.ndarray, np.ndarray] | None = None, check: bool = False,
           first_step: float | None = None, land_reports: bool = False,
           rung: float | None = None, cache: FactorCache | None = None,
+          plausible: float = PLAUSIBLE_SPAN,
           progress: Callable[[float, float], None] | None = None) -> History:
     """Integrate C dT/dt + K T = F(t) from the initial state over the report times.
 
@@ -165,7 +173,9 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     boundary
         None, or ``"zero"`` for all boundary values zero (linear models: the rise).
     tolerance
-        K: the local time-step error allowed in each step (max over nodes).
+        K: the local time-step error allowed in each step (max over nodes); raised to
+        :data:`RELATIVE_TOLERANCE` of the temperature span where the span passes
+        ``plausible`` (K; the largest used is ``stats["tolerance_used_k"]``).
     store_at
         Times (s, within the run) at which the whole nodal field is kept.
     method
@@ -257,6 +267,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     p = 0                               # plan position
     rejects = 0
     rejected_total = 0
+    used = tolerance                    # the largest tolerance a step was held to
     local = []
     while j < len(targets):
         target = targets[j]
@@ -284,7 +295,15 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                 raise
             step = None
         err = np.inf if step is None else step[1]
-        if plan is None and not err <= tolerance:
+        allowed = tolerance
+        if plan is None and len(T) and np.isfinite(err):
+            # The span before the step or at its end (a relative error control).
+            T_end = step[0]
+            span = max(float(T.max() - T.min()), float(np.abs(T - T0).max()),
+                       float(T_end.max() - T_end.min()), float(np.abs(T_end - T0).max()))
+            if span > plausible:
+                allowed = max(tolerance, RELATIVE_TOLERANCE * span)
+        if plan is None and not err <= allowed:
             rejects += 1
             rejected_total += 1
             if rejects > MAX_REJECTS:
@@ -293,7 +312,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                                  file=system.model.source)
             order = 2 if euler else 3
             drop = 1 if not np.isfinite(err) else max(
-                1, math.ceil(math.log(err / (0.5 * tolerance)) / math.log(RATIO**order)))
+                1, math.ceil(math.log(err / (0.5 * allowed)) / math.log(RATIO**order)))
             k = math.floor(math.log(s / s0, RATIO) + 1e-9) - drop
             floor = FLOOR * max(t, float(targets[0]))
             if s0 * RATIO**k < (floor if euler else D * floor):
@@ -301,6 +320,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                                  f"(error {err:.3g} K)", file=system.model.source)
             continue
         rejects = 0
+        used = max(used, allowed)
         T_prev = T
         T, _, e_in, e_out, Tg, est, g_new = step
         g_prev = g
@@ -341,12 +361,12 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                 startup -= 1
                 if startup == 0:
                     k -= 1
-            elif not landing and err < GROW * tolerance:
+            elif not landing and err < GROW * allowed:
                 k += 1
         if progress:
             progress(t, end)
     counts = {**stepper.counts(), "steps": len(rec.steps), "rejected": rejected_total,
-              "largest_local_error_k": max(local, default=0.0)}
+              "largest_local_error_k": max(local, default=0.0), "tolerance_used_k": used}
     if transport:
         counts["error_estimate"] = TRANSPORTED
         return rec.history(T, counts, error=np.asarray(row_error), peak_error=peak_error)

@@ -30,7 +30,7 @@ from ..pipeline.chain import stage_runner
 from .forcing import forcing
 from .history import History
 from .linear import DIRECT_LIMIT, FactorCache
-from .march import march, merge_times, steady_start
+from .march import PLAUSIBLE_SPAN, RELATIVE_TOLERANCE, march, merge_times, steady_start
 from .network import cauer, foster_fit, modal_network
 from .periodic import duty_family, periodic_peak
 
@@ -235,11 +235,16 @@ def impedances(system, times: np.ndarray, settings, method: str,
             z = hist.shape_rise[:, index] / step[1]
             r_total, node = _steady_rise(system, name, method, cache)
         elif linear:
-            hist = march(system, times=times, initial=0.0, power={name: 1.0},
-                         boundary="zero", tolerance=settings.tolerance / peak, method=method,
-                         cache=cache)
-            z = hist.shape_max[:, index]
             r_total, node = _steady_rise(system, name, method, cache)
+            tol = settings.tolerance / peak
+            if peak * abs(r_total) > PLAUSIBLE_SPAN:
+                # The march's own rule at the shape's peak power, from the first step on
+                # (its rise is known here: the march from zero would learn it too late).
+                tol = max(tol, RELATIVE_TOLERANCE * abs(r_total))
+            hist = march(system, times=times, initial=0.0, power={name: 1.0},
+                         boundary="zero", tolerance=tol, method=method, cache=cache,
+                         plausible=PLAUSIBLE_SPAN / peak)
+            z = hist.shape_max[:, index]
         else:
             hist = march(system, times=times, initial=zero_state, power={name: peak},
                          tolerance=settings.tolerance, method=method)

@@ -22,8 +22,9 @@ import numpy as np
 
 from ..fem.sanity import check_finite
 from ..post.resistance import shape_stats, surface_means
-from ..post.results import CAUTION, CONDUCTOR_CAUTION
+from ..post.results import CAUTION, CONDUCTOR_CAUTION, IMPLAUSIBLE_C
 from ..version import __version__
+from .march import PLAUSIBLE_SPAN, RELATIVE_TOLERANCE
 
 TIME_CAUTION = (
     "A transient run assumes the section is long in depth and that the materials' density "
@@ -71,6 +72,18 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
             warnings.append(f"shape \"{name}\": its pulse train repeated for ever (duty "
                             f"{100 * per['duty']:.3g} %) would reach {per['peak']:.1f} °C, "
                             f"above its limit {limit:g} °C")
+    hottest = float(np.nanmax(history.peak_max)) if np.isfinite(history.peak_max).any() \
+        else float("nan")
+    if hottest > IMPLAUSIBLE_C:
+        warnings.append(f"the model reaches {hottest:.4g} °C, past the melting point of "
+                        "every board and package material: check the powers, power "
+                        "densities and units")
+    used = float(history.stats.get("coarse", history.stats).get("tolerance_used_k", 0.0))
+    if used > model.transient.tolerance * (1 + 1e-9):
+        warnings.append(f"the time-step tolerance was raised from "
+                        f"{model.transient.tolerance:g} K to {used:.3g} K, "
+                        f"{RELATIVE_TOLERANCE:g} of a temperature span past "
+                        f"{PLAUSIBLE_SPAN:g} K")
     means = surface_means(mesh, system.layout, history.final)
     boundaries = {b.name: {"kind": b.label, "heat_out_w": float(history.heat_out[-1, i]),
                            "heat_out_peak_w": float(np.max(history.heat_out[:, i])),
@@ -157,6 +170,8 @@ def _transient(result) -> dict[str, Any]:
         "smallest_step_s": float(np.min(h.steps)), "largest_step_s": float(np.max(h.steps)),
         "initial": st.initial if isinstance(st.initial, str) else float(st.initial),
         "tolerance_k": st.tolerance,
+        "tolerance_used_k": float(stats.get("coarse", stats).get("tolerance_used_k",
+                                                                  st.tolerance)),
         # The history march's own counts (a linear model's error transport is among
         # them); a nonlinear model's check march on halved steps under "check_march".
         "solver": _counts(stats.get("coarse", stats)),
