@@ -391,7 +391,8 @@ def reshape(draw: st.DrawFn, doc: Doc) -> Doc:
     """Plausible geometry mistakes: every length scaled (a unit slip), a sliver, a shape
     moved far away or lifted off the rest, a shape covered by a later one."""
     how = draw(st.sampled_from(["scale", "sliver", "far", "lift", "cover"]))
-    shapes = [t for t in doc.get("shape", []) if isinstance(t, dict)]
+    raw = doc.get("shape")
+    shapes = [t for t in raw if isinstance(t, dict)] if isinstance(raw, list) else []
     if how == "scale" or not shapes:
         factor = draw(st.sampled_from([1e-6, 1e-3, 1e3, 1e5]))
         for p in _lengths(doc):
@@ -400,7 +401,10 @@ def reshape(draw: st.DrawFn, doc: Doc) -> Doc:
     shape = draw(st.sampled_from(shapes))
     geo = next((shape[k] for k in ("rect", "circle") if isinstance(shape.get(k), dict)), None)
     if how == "cover":
-        doc["shape"].append({"name": "cover", "material": next(iter(doc["materials"])),
+        # An earlier mutation may have left [materials] empty or not a table: any name.
+        materials = doc.get("materials")
+        name = next(iter(materials), "m") if isinstance(materials, dict) else "m"
+        doc["shape"].append({"name": "cover", "material": name,
                              "rect": {"x": -1, "y": -1, "width": 100, "height": 100}})
     elif geo is None:
         return doc
