@@ -90,6 +90,18 @@ class FactorCache:
             return self._steady[1]
         return None
 
+    def steady_order(self, n: int):
+        """An order-only copy of the kept steady factor when it is a SuperLU factor of n
+        unknowns in a fill-reducing order of its own (C + s K has K's pattern: the same
+        order serves the rungs, sparing a second nested dissection), else None."""
+        f = self._steady[1] if self._steady is not None else None
+        if (f is None or getattr(f, "backend", None) != "superlu"
+                or getattr(f, "order", None) is None or len(f.order) != n):
+            return None
+        base = copy.copy(f)
+        base.lu = base.pardiso = None
+        return base
+
     def keep_steady(self, system, factor) -> None:
         """Keep the factor of a linear steady solve of ``system`` (its own K)."""
         if factor is not None:
@@ -189,6 +201,10 @@ class Ladder:
         else:
             self.factorizations += 1
         base = self.cache.bases.get(self.print)
+        if base is None and self.method == "direct":
+            base = self.cache.steady_order(A.shape[0])
+            if base is not None:
+                self.cache.bases[self.print] = base
         if base is None or self.method != "direct":
             f = Factor(self.method, A, keep_order=True, points=self.points)
             # The order kept for later rungs, not the factors (a rung dropped from the

@@ -45,7 +45,7 @@ from ..fem.solver import solve as steady_solve
 from .forcing import forcing
 from .history import History, Recorder
 from .joule_stepper import JouleStepper, joule_steady_start
-from .linear import DIRECT_LIMIT, RATIO, FactorCache
+from .linear import DIRECT_LIMIT, KEEP, RATIO, FactorCache
 from .steppers import LinearStepper, NewtonStepper
 
 GAMMA = 2 - math.sqrt(2)
@@ -228,6 +228,8 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         # factor serves the steady rise of each impedance, where multigrid CG from zero
         # can take hundreds of iterations for a unit load: 45 s at a million nodes).
         chosen = "direct"
+    if cache is None:               # the steady start's ordering serves the rungs
+        cache = FactorCache(keep=KEEP)
     T0 = _initial(system, drive, initial, chosen, cache)
     gaps = np.diff(np.concatenate([[0.0], breaks])) if len(breaks) else np.array([end])
     h_first = first_step or min(times[0], targets[0], float(gaps.min())) / 4
