@@ -34,6 +34,19 @@ MAX_CIRCLE_SIDES = 20_000
 the outline's vertex count, about 12 s for 10 000 chords)."""
 
 
+def _worst_growth(mesh: Mesh) -> tuple[int, float, float]:
+    """The shape holding most nodes beyond its estimate (a node per two triangles), and
+    where its smallest triangles are."""
+    shapes = mesh.geometry.model.shapes
+    expected = estimate_nodes(mesh.geometry)
+    extra = np.bincount(mesh.triangle_shape, minlength=len(shapes)) / 2 - expected
+    worst = int(np.argmax(extra))
+    mine = np.flatnonzero(mesh.triangle_shape == worst)
+    small = mine[np.argsort(mesh.areas[mine])[:max(1, len(mine) // 100)]]
+    x, y = mesh.points[mesh.triangles[small]].reshape(-1, 2).mean(axis=0)
+    return worst, float(x), float(y)
+
+
 def growth_warnings(mesh: Mesh) -> tuple[str, ...]:
     """A warning when the mesher made far more nodes than the areas and sizes call for: a
     sliver or a tiny gap forced it below the target size (a decimal slip, usually)."""
@@ -42,19 +55,35 @@ def growth_warnings(mesh: Mesh) -> tuple[str, ...]:
     n = len(mesh.points)
     if n <= GROWTH_FLOOR or n <= MESH_GROWTH * (expected.sum() + len(geometry.vertices)):
         return ()
-    # The shape holding most nodes beyond its estimate (a node per two triangles), and
-    # where its smallest triangles are.
-    shapes = geometry.model.shapes
-    extra = np.bincount(mesh.triangle_shape, minlength=len(shapes)) / 2 - expected
-    worst = int(np.argmax(extra))
-    mine = np.flatnonzero(mesh.triangle_shape == worst)
-    small = mine[np.argsort(mesh.areas[mine])[:max(1, len(mine) // 100)]]
-    x, y = mesh.points[mesh.triangles[small]].reshape(-1, 2).mean(axis=0)
+    worst, x, y = _worst_growth(mesh)
     ratio = n / (expected.sum() + len(geometry.vertices))
     return (f"the mesh has {n} nodes, {ratio:.0f} times what the areas and sizes call for: "
-            f"shape \"{shapes[worst].name}\" has triangles far below its target size near "
-            f"({x:.6g}, {y:.6g}), where a sliver or a tiny gap forces them (check the "
-            "coordinates there, or join the pieces)",)
+            f"shape \"{geometry.model.shapes[worst].name}\" has triangles far below its "
+            f"target size near ({x:.6g}, {y:.6g}), where a sliver or a tiny gap forces them "
+            "(check the coordinates there, or join the pieces)",)
+
+
+def check_mesh_nodes(mesh: Mesh) -> None:
+    """Refuse a first mesh that came out over the node limit although its estimate
+    passed (a sliver the estimate does not see), naming the shape whose triangles grew
+    most and where, before anything is solved on it."""
+    model = mesh.geometry.model
+    n = len(mesh.points)
+    if n <= model.mesh.node_limit:
+        return
+    expected = estimate_nodes(mesh.geometry)
+    over = f"the mesh came out at {n} nodes, more than the node limit of " \
+        f"{model.mesh.node_limit}"
+    raise_it = "raise the limit with [mesh] node_limit or --node-limit"
+    if n <= MESH_GROWTH * (expected.sum() + len(mesh.geometry.vertices)):
+        raise ModelError(f"{over}; use a larger size, or {raise_it}", file=model.source,
+                         entry="[mesh]")
+    worst, x, y = _worst_growth(mesh)
+    shape = model.shapes[worst]
+    raise ModelError(
+        f"{over}: its triangles fall far below the target size near ({x:.6g}, {y:.6g}), "
+        f"where a sliver or a tiny gap forces them; check the coordinates there, or "
+        f"{raise_it}", file=model.source, entry=f"shape \"{shape.name}\"", line=shape.line)
 
 
 def estimate_nodes(geometry: Geometry) -> np.ndarray:

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..errors import MeshError
-from .budget import EQUILATERAL_AREA, check_node_limit, growth_warnings
+from .budget import EQUILATERAL_AREA, check_mesh_nodes, check_node_limit, growth_warnings
 from .geometry import Geometry, circle_sides
 
 """Area of an equilateral triangle of unit side: target size h -> area bound."""
@@ -130,7 +130,7 @@ def build_mesh(geometry: Geometry) -> Mesh:
         The mesher failed or returned a mesh inconsistent with the graph.
     ModelError
         The estimated node count passes ``model.mesh.node_limit`` (see
-        :func:`check_node_limit`).
+        :func:`check_node_limit`), or the mesh itself does (:func:`check_mesh_nodes`).
     """
     check_node_limit(geometry)
     regions = geometry.seeds.copy()
@@ -145,6 +145,7 @@ def build_mesh(geometry: Geometry) -> Mesh:
     if len(geometry.holes):
         data["holes"] = geometry.holes
     mesh = _finish(geometry, _triangulate(geometry, data, ""))
+    check_mesh_nodes(mesh)
     said = growth_warnings(mesh)
     return replace(mesh, warnings=said) if said else mesh
 
