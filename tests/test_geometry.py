@@ -45,19 +45,16 @@ def test_later_shapes_cover_earlier_ones():
     assert material_areas(mesh) == pytest.approx({"a": 6, "b": 4, "c": 0}, abs=1e-12)
 
 
-def test_covered_outline_leaves_the_graph_and_every_face_keeps_its_material():
-    # "top" covers part of the outline of "mid"; that part lies inside top and is left out
-    # of the graph, so top's visible piece is one face, meshed as top's material (c).
+def test_covered_outline_splits_a_piece_and_every_face_keeps_its_material():
+    # "top" covers part of the outline of "mid"; that outline cuts top's visible piece into
+    # two faces, and both must be meshed as top's material (c), not mid's (b).
     model = shapes_model(rect("base", "a", 0, 0, 6, 2) + rect("mid", "b", 1, 0.5, 2, 1)
                          + rect("top", "c", 2, 0, 2, 2))
     geo = build_geometry(model)
-    assert len(geo.seeds) == 4          # base left and right of top, mid, top
-    a, b = geo.vertices[geo.segments[:, 0]], geo.vertices[geo.segments[:, 1]]
-    inside_top = (np.minimum(a[:, 0], b[:, 0]) > 2) & (np.maximum(a[:, 0], b[:, 0]) < 4)
-    assert not inside_top.any()         # mid's covered right side and top/bottom pieces
+    assert len(geo.seeds) == 5          # base left and right of top, mid, top split in two
     mesh = build_mesh(geo)
     assert material_areas(mesh) == pytest.approx({"a": 12 - 1 - 4, "b": 1, "c": 4}, abs=1e-12)
-    # Visible outlines survive as mesh edges: no triangle straddles x = 2 or x = 4.
+    # Shape outlines survive as mesh edges: no triangle straddles x = 2 or x = 3.
     x = mesh.points[mesh.triangles, 0]
     for line in (2.0, 4.0):             # top's sides span the whole height
         assert not ((x.min(axis=1) < line - 1e-12) & (x.max(axis=1) > line + 1e-12)).any()
@@ -66,9 +63,10 @@ def test_covered_outline_leaves_the_graph_and_every_face_keeps_its_material():
 def test_a_covered_sliver_outline_does_not_refine_the_mesh():
     # A 1e-5-thick pour wholly under a later layer: its outline a hair from the layer's
     # edge once forced a sliver of triangles along it (7 million nodes for a 16 mm pour,
-    # found by the long property run). Covered, it must leave the mesh as without it (two
-    # more vertices on the layer's edge at most; a 1e-3 outline would add tens of
-    # thousands of nodes).
+    # found by the long property run). Covered whole, its outline leaves the graph and
+    # the mesh is as without it (two more vertices on the layer's edge at most; a 1e-3
+    # outline would add tens of thousands of nodes). A partly covered outline stays (the
+    # test above).
     layer = rect("layer", "b", 0, 1, 20, 0.07)
     plain = build_mesh(build_geometry(shapes_model(rect("base", "a", 0, 0, 20, 1) + layer)))
     pour = rect("pour", "b", 2, 1, 16, 1e-3)

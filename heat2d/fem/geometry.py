@@ -118,11 +118,13 @@ def build_geometry(model: Model, *, refine: float = 1.0) -> Geometry:
         raise GeometryError("no solid material is left after voids and covering shapes",
                             file=model.source, entry="[[shape]]")
 
-    # Graph: the outline of every visible piece, noded. What later shapes cover of an
-    # outline is left out: it lies inside one shape, and a covered outline a hair from a
-    # visible edge would force a sliver of triangles there (a 1e-5 mm pour under a 16 mm
-    # layer meshed to 7 million nodes).
-    outlines = [v.boundary for v in visible if not v.is_empty] + [body.boundary]
+    # Graph: every outline piece on the body, noded, but none of a shape that later ones
+    # cover whole: its outline lies inside them, and one a hair from a visible edge would
+    # force a sliver of triangles there (a covered 1e-5 mm pour under a 16 mm layer
+    # meshed to 7 million nodes). A partly covered outline stays: dropping its covered
+    # part leaves slivers of the visible pieces to the mesher without their faces.
+    outlines = [p.boundary for p, v in zip(polys, visible, strict=True)
+                if not v.is_empty and v.area > 0] + [body.boundary]
     lines = shapely.intersection(shapely.union_all(outlines, grid_size=grid), body,
                                  grid_size=grid)
     lines = shapely.line_merge(shapely.union_all(
