@@ -286,6 +286,19 @@ size = 0.625
 # 1e9 W held on the die: 0.01 K per step on a rise of 1e10 K took steps of 2e-7 s, past
 # the time limit (the tolerance now rises to 1e-4 of the temperature span).
 FOUND["transient, 1e9 W hold"] = _bundled("pulsed_switch", "p_hold = 0.3 ", "p_hold = 1e9 ")
+# The bus narrowed to 0.5 mm at 30 A: a thermal runaway (exit 1 with one line: an answer,
+# no steady state exists), which the contract now allows as it allows exit 2.
+FOUND["joule, runaway"] = _bundled("bus_plane", "bus_w = 10", "bus_w = 0.5")
+# 1e6 W in the power stage's FET: Newton diverged to 2.7e6 °C and exited 1 (now exit 2,
+# naming the most powerful shape: the temperatures pass every table's range).
+FOUND["nonlinear, 1e6 W"] = _bundled("power_stage", 'power = "p_fet"', "power = 1e6")
+# The tab moved below the board: the die and its attach covered whole, yet the die's
+# schedule was counted as energy in (300 J), and the balance was reported open by 1.
+FOUND["transient, covered powered die"] = _bundled("pulsed_switch", 'y_tab = "board_t + t_solder"',
+                                                   "y_tab = -1")
+# A pulse train left without a count over 1000 s: 20 000 pulses, 40 000 schedule changes,
+# past the time limit (now refused: at most 1000 changes).
+FOUND["transient, endless pulse train"] = _bundled("pulsed_switch", ', count = "pulses"', "")
 # The tab stretched to 1e6 mm: estimated under the node limit of 200 000, meshed to
 # 254 374 nodes and marched past the time limit (the mesh itself is now checked).
 FOUND["mesh over the limit, estimate under"] = _bundled(

@@ -19,7 +19,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import SolveError
+from ..errors import ModelError, SolveError
+from ..model.ranges import TEMPERATURE_C
 from .conditioning import conditioning, refusal
 from .ordering import fill_order
 
@@ -447,6 +448,17 @@ def _newton(system: System, T: np.ndarray, free: np.ndarray, factor: Factor, tol
         if change < tol or (fixed_steps and it == max_iterations):
             return T, float(norm), history, total
     last = history[-1] if history else (0, np.nan, np.nan)
+    hottest = float(np.nanmax(np.abs(T))) if np.isfinite(T).any() else np.inf
+    if hottest > TEMPERATURE_C:
+        # Past every temperature a model may give (tables, limits): bad input, usually a
+        # power slipped by decades; the shape with the most power is the first suspect.
+        shapes = [sh for sh in system.model.shapes if sh.power]
+        top = max(shapes, key=lambda sh: sh.power, default=None)
+        raise ModelError(f"the nonlinear solve diverged: temperatures reach {hottest:.3g} °C, "
+                         f"past {TEMPERATURE_C:g} °C; check the powers, power densities and "
+                         "units", file=system.model.source,
+                         entry=f'shape "{top.name}"' if top else None,
+                         line=top.line if top else None)
     raise SolveError(f"nonlinear solve did not converge in {max_iterations} iterations: last "
                      f"temperature change {last[1]:.3g} K (tolerance {tol:g} K)",
                      file=system.model.source)

@@ -214,7 +214,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
         raise ValueError("times must be increasing and > 0")
     end = float(times[-1])
     drive = forcing(system, power, boundary)
-    breaks = drive.breaks(end)
+    breaks = drive.breaks(end, limit=plan is None)
     times = merge_times(times, prefer=breaks)
     store = np.asarray(store_at, dtype=float)
     targets = _targets(times if land_reports else times[-1:], store, breaks, end)
