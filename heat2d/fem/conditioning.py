@@ -18,6 +18,9 @@ ILL_CONDITIONED_ROUNDOFF = 1e-6
 """Warn when the condition estimate times machine epsilon exceeds this: reported figures
 then carry round-off above the 1e-6 to which the energy balance is otherwise checked."""
 EPS = float(np.finfo(float).eps)
+ROUNDOFF_CAP = 1e-5
+"""In an ill-conditioned system Newton stops at a change of κε of the largest |T| (the
+round-off of its solves, :func:`roundoff`), at most this fraction of it."""
 
 
 def conditioning(system: System, Kf: sp.csr_matrix, free: np.ndarray,
@@ -75,3 +78,12 @@ def refusal(system: System, note: str, reason: str) -> ModelError:
     material = system.model.materials[system.mesh.triangle_material[np.argmax(k)]]
     return ModelError(f"{note.replace('figures may carry', 'the solve fails with')} ({reason})",
                       file=system.model.source, entry=f"material \"{material.name}\"")
+
+
+def roundoff(system: System, free: np.ndarray) -> tuple[float, str | None]:
+    """The relative change below which Newton cannot go in this system: κε (at most
+    :data:`ROUNDOFF_CAP`) when :func:`conditioning` calls it ill-conditioned, else 0;
+    and the ill-conditioning note or None."""
+    K = system.K.tocsr()
+    kappa, note = conditioning(system, K[free][:, ~free], free, K.diagonal()[free])
+    return (min(kappa * EPS, ROUNDOFF_CAP) if note else 0.0), note

@@ -35,7 +35,7 @@ import numpy as np
 from ..errors import ModelError, SolveError, ThermalRunawayError
 from ..model.schema import RESISTIVITY_FLOOR
 from .assembly import System
-from .conditioning import EPS, conditioning, refusal
+from .conditioning import refusal, roundoff
 from .solver import AUTO_DIRECT_LIMIT, METHODS, Factor, Solution, solve
 
 ONSET_RTOL = 1e-3
@@ -50,9 +50,6 @@ MAX_BISECTIONS = 30
 RELATIVE_TOL = 1e-8
 """Newton also stops when the change is below this fraction of the largest |T| (°C): the
 round-off floor of states close to a runaway, where temperatures reach 10⁵ °C."""
-ROUNDOFF_CAP = 1e-5
-"""In an ill-conditioned system Newton stops at a change of κε of the largest |T| (its
-round-off; :func:`~.conditioning.conditioning`), at most this fraction of it."""
 RUNAWAY_TEMPERATURE = 1e7
 """°C: a Newton iterate hotter than this is taken as diverging."""
 
@@ -359,11 +356,10 @@ def solve_joule(system: System, *, method: str = "auto", initial: np.ndarray | N
         "direct" if free.sum() < AUTO_DIRECT_LIMIT else "multigrid")
     t_start = _start(system) if initial is None else np.array(initial, dtype=float)
     t_start[system.fixed] = system.fixed_value
-    # As the linear solve: say when round-off can show (the balance carries the note).
-    kappa, note = conditioning(system, system.K.tocsr()[free][:, ~free], free,
-                               system.K.diagonal()[free])
-    # Newton's change cannot fall below the round-off of the solve (κε of the temperatures).
-    relative = max(RELATIVE_TOL, min(kappa * EPS, ROUNDOFF_CAP)) if note else RELATIVE_TOL
+    # As the linear solve: say when round-off can show (the balance carries the note);
+    # Newton's change cannot fall below the round-off of its solves.
+    floor, note = roundoff(system, free)
+    relative = max(RELATIVE_TOL, floor)
     attempt = _newton(system, found, t_start, free, chosen, 1.0, tol, max_iterations,
                       relative)
     if not attempt.ok:

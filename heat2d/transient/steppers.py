@@ -16,6 +16,7 @@ import scipy.sparse as sp
 
 from ..errors import SolveError
 from ..fem.capacity import capacity, enthalpy, varies
+from ..fem.conditioning import roundoff
 from ..fem.solver import Factor
 from .linear import Ladder
 
@@ -99,6 +100,9 @@ class NewtonStepper(_Base):
         self.iterations = 0
         self.base_F = system.F
         self.H0 = enthalpy(system, T0, rho_c) if self.var_c else None
+        # In an ill-conditioned system a stage's Newton stops at its round-off (else it
+        # stalls above NEWTON_TOL, and each step is rejected down to the floor).
+        self.roundoff = roundoff(system, self.free)[0]
 
     def capacity(self, T: np.ndarray) -> np.ndarray:
         return capacity(self.system, T, self.rho_c)[0] if self.var_c else self.C0
@@ -151,7 +155,7 @@ class NewtonStepper(_Base):
             change = float(np.abs(delta).max()) if len(delta) else 0.0
             if not np.isfinite(change):
                 break
-            if change < NEWTON_TOL:
+            if change < max(NEWTON_TOL, self.roundoff * float(np.abs(T).max())):
                 return T
             if change > SLOW * previous:
                 stale = True
