@@ -216,8 +216,6 @@ FOUND["transient uniform unpowered ring"] = (
 # heat through the boundaries).
 
 
-
-
 def _bundled(name: str, old: str, new: str) -> str:
     text = (ROOT / "models" / f"{name}.toml").read_text(encoding="utf-8")
     assert old in text
@@ -231,8 +229,8 @@ def _bundled(name: str, old: str, new: str) -> str:
 FOUND["joule, laminate kx 1e9"] = _bundled("bus_plane", "kx = 1.06", "kx = 1e9")
 FOUND["joule, laminate kx 1e15"] = _bundled("bus_plane", "kx = 1.06", "kx = 1e15")
 # A 1e-5 mm pour wholly under the top copper layer: its covered outline, a hair from the
-# layer's edge, made a 7-million-node mesh and ran past the time limit (covered outlines
-# now stay out of the graph).
+# layer's edge, made a 7-million-node mesh and ran past the time limit (the outline of a
+# shape covered whole now stays out of the graph).
 FOUND["covered sliver pour"] = _bundled(
     "power_stage", 'width = "pour_l", height = "t_outer" }', 'width = "pour_l", height = 1e-5 }')
 # A void circle all but covered by a later solid one (a hair larger, a hair off centre):

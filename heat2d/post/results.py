@@ -28,6 +28,16 @@ IMPLAUSIBLE_C = 1500.0
 """A field hotter than this (°C) is past the melting point of copper (1085 °C) and of
 every laminate, solder and silicon (1414 °C) (handbook values, from memory): a slip in a
 power or unit, not a result."""
+
+
+def implausible(hottest: float) -> list[str]:
+    """The warning for a field hotter than :data:`IMPLAUSIBLE_C` (a list: empty or one)."""
+    if not hottest > IMPLAUSIBLE_C:
+        return []
+    return [f"the model reaches {hottest:.4g} °C, past the melting point of every board "
+            "and package material: check the powers, power densities and units"]
+
+
 CONDUCTOR_CAUTION = (
     "A 2-D section takes each conductor as long and straight: no end effects, no AC skin "
     "effect, no current crowding at vias or connectors; the current ratings of the board "
@@ -277,10 +287,7 @@ def compute_results(solution: Solution, *, timings: dict[str, float] | None = No
                          f"balance open by {balance['relative_error']:.1e}, so no heat flow "
                          "can be trusted; use a conductivity within a few decades of the "
                          "others", file=model.source, entry=f'material "{name}"')
-    if T.max() > IMPLAUSIBLE_C:
-        warnings.append(f"the model reaches {T.max():.4g} °C, past the melting point of "
-                        "every board and package material: check the powers, power "
-                        "densities and units")
+    warnings += implausible(float(T.max()))
     if abs(balance["relative_error"]) > REACTION_ROUNDOFF:
         warnings.append(f"energy balance closes only to {balance['relative_error']:.1e} "
                         f"(heat out {balance['heat_out_w']:.6g} W, power in "

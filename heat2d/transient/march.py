@@ -67,11 +67,9 @@ STRETCH = 0.01
 MAX_REJECTS = 60
 RELATIVE_TOLERANCE = 1e-4
 PLAUSIBLE_SPAN = 1000.0
-"""K. Where the temperature span (the state's range, or its largest change from the
-start) passes this, past the melting point of every board material, the tolerance is
-raised to :data:`RELATIVE_TOLERANCE` of the span: 0.01 K allowed on a rise of a billion
-kelvin (a power with a slip of many decades) would take millions of steps for figures
-that are no result. Below it the tolerance is the one asked for."""
+"""K. Past this temperature span (:func:`_span`; every board material has melted) the
+tolerance rises to :data:`RELATIVE_TOLERANCE` of the span: 0.01 K on a rise of 1e10 K (a
+power slipped by decades) would take millions of steps for figures that are no result."""
 TRANSPORTED = "local errors transported by the scheme"
 HALVED = "march repeated on halved steps"
 """How the time-step error estimate was made (``History.stats["error_estimate"]``)."""
@@ -270,6 +268,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     rejects = 0
     rejected_total = 0
     used = tolerance                    # the largest tolerance a step was held to
+    span = _span(T0, T0)                # the temperature span reached so far
     local = []
     while j < len(targets):
         target = targets[j]
@@ -297,14 +296,11 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
                 raise
             step = None
         err = np.inf if step is None else step[1]
-        allowed = tolerance
-        if plan is None and len(T) and np.isfinite(err):
-            # The span before the step or at its end (a relative error control).
-            T_end = step[0]
-            span = max(float(T.max() - T.min()), float(np.abs(T - T0).max()),
-                       float(T_end.max() - T_end.min()), float(np.abs(T_end - T0).max()))
-            if span > plausible:
-                allowed = max(tolerance, RELATIVE_TOLERANCE * span)
+        allowed, span_end = tolerance, span
+        if plan is None and np.isfinite(err):      # the span before the step or at its end
+            span_end = _span(step[0], T0)
+            if max(span, span_end) > plausible:
+                allowed = max(tolerance, RELATIVE_TOLERANCE * max(span, span_end))
         if plan is None and not err <= allowed:
             rejects += 1
             rejected_total += 1
@@ -323,6 +319,7 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
             continue
         rejects = 0
         used = max(used, allowed)
+        span = max(span, span_end)
         T_prev = T
         T, _, e_in, e_out, Tg, est, g_new = step
         g_prev = g
@@ -388,6 +385,11 @@ def march(system, *, times: Sequence[float], initial="steady", rho_c=None,
     return replace(fine, error=error, peak_error=peak_error,
                    stats={**fine.stats, "coarse": counts, "error_estimate": HALVED,
                           "largest_local_error_k": counts["largest_local_error_k"]})
+
+
+def _span(T: np.ndarray, T0: np.ndarray) -> float:
+    """The temperature span of a state: its range, or its largest change from T0."""
+    return max(float(T.max() - T.min()), float(np.abs(T - T0).max())) if len(T) else 0.0
 
 
 def _error_at(T: np.ndarray, e: np.ndarray) -> float:

@@ -22,7 +22,7 @@ import numpy as np
 
 from ..fem.sanity import check_finite
 from ..post.resistance import shape_stats, surface_means
-from ..post.results import CAUTION, CONDUCTOR_CAUTION, IMPLAUSIBLE_C
+from ..post.results import CAUTION, CONDUCTOR_CAUTION, implausible
 from ..version import __version__
 from .march import PLAUSIBLE_SPAN, RELATIVE_TOLERANCE
 
@@ -72,12 +72,8 @@ def build_summary(result, timings: dict[str, float]) -> dict[str, Any]:
             warnings.append(f"shape \"{name}\": its pulse train repeated for ever (duty "
                             f"{100 * per['duty']:.3g} %) would reach {per['peak']:.1f} °C, "
                             f"above its limit {limit:g} °C")
-    hottest = float(np.nanmax(history.peak_max)) if np.isfinite(history.peak_max).any() \
-        else float("nan")
-    if hottest > IMPLAUSIBLE_C:
-        warnings.append(f"the model reaches {hottest:.4g} °C, past the melting point of "
-                        "every board and package material: check the powers, power "
-                        "densities and units")
+    if np.isfinite(history.peak_max).any():
+        warnings += implausible(float(np.nanmax(history.peak_max)))
     used = float(history.stats.get("coarse", history.stats).get("tolerance_used_k", 0.0))
     if used > model.transient.tolerance * (1 + 1e-9):
         warnings.append(f"the time-step tolerance was raised from "
